@@ -1,0 +1,31 @@
+# The two commands of the README: `make demo` and `make test`.
+PYTHON ?= python3
+VENV ?= .venv
+BIN := $(VENV)/bin
+STAMP := $(VENV)/.installed
+
+.PHONY: demo test setup bench clean
+
+setup: $(STAMP)
+
+$(STAMP): pyproject.toml
+	test -x $(BIN)/python || $(PYTHON) -m venv $(VENV)
+	$(BIN)/python -m pip install --quiet --upgrade pip
+	$(BIN)/python -m pip install --quiet -e ".[test,cluster]"
+	touch $(STAMP)
+
+demo: $(STAMP)
+	@mkdir -p renders
+	@for patch in patches/*.yaml; do \
+		$(BIN)/synth render "$$patch" --quiet || exit 1; \
+	done
+	@echo "listening caution: start playback quietly and raise it slowly; long exposure to loud sound harms hearing"
+
+test: $(STAMP)
+	$(BIN)/python -m pytest -q
+
+bench: $(STAMP)
+	$(BIN)/python benchmarks/engine.py
+
+clean:
+	rm -rf renders/*.wav .pytest_cache

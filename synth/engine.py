@@ -1,0 +1,361 @@
+"""Modal synthesis engine: render a bank of exponentially decaying sinusoids.
+
+Every render in synth goes through :func:`render_modes`.  It evaluates
+
+    y(t) = sum_m a_m * exp(-ln(1000) * t / T60_m) * sin(2 pi f_m t + phi_m)
+
+at t = n / sample_rate, blockwise, as real matrix products (one GEMM per
+chunk of blocks), in memory that does not grow with the duration.
+
+Method
+------
+Write z_m = exp(s_m) with s_m = (-sigma_m + i omega_m), sigma_m = ln(1000) /
+(T60_m fs) and omega_m = 2 pi f_m / fs (per sample).  For a sample
+n = k B + r inside block k of B samples,
+
+    y[n] = Im( sum_m z_m^r * c_m * z_m^(kB) ),   c_m = a_m exp(i phi_m),
+
+and with u = i conj(c z^(kB)) (so that Re u = Im(c z^kB), Im u = Re(c z^kB))
+
+    y[n] = sum_m Re(z_m^r) Re(u_mk) + Im(z_m^r) Im(u_mk).
+
+Viewing complex64 arrays as interleaved float32 pairs, the whole chunk is
+``out(K x B) = U(K x 2M) @ P(B x 2M)^T``: one float32 GEMM with 4 flops per
+mode-sample.  The matrices are never built from millions of ``exp`` calls:
+
+* ``P`` (the first block, z^r for r < B) is an outer product of two short
+  power tables, z^(jS) * z^l with r = jS + l;
+* ``U`` for a chunk starting at block k0 is the exact state z^(k0 B) (one
+  float64 complex ``exp`` per mode and chunk, so nothing drifts however long
+  the render) times a per-render table of z^(jB), j < chunk length;
+* every power table is built in float64 by doubling (x^(2^p) from a direct
+  ``exp``), so an entry carries at most log2(length) float64 roundings.
+
+Only the GEMM operands are float32.  Work skipping: modes are sorted by the
+sample at which their envelope falls below a floor, so the live modes of a
+chunk are a prefix of the operands and dead modes cost nothing.
+"""
+
+from __future__ import annotations
+
+import math
+import os
+
+import numpy as np
+
+__all__ = [
+    "DEFAULT_FLOOR",
+    "MIN_ENVELOPE",
+    "render_modes",
+]
+
+LN_1000 = math.log(1000.0)  # dimensionless: ln of the amplitude ratio of 60 dB
+DEFAULT_FLOOR = 1e-7  # dimensionless, fraction of sum|a_m| (-140 dB); total skip error bound
+MIN_ENVELOPE = 1e-20  # amplitude units (absolute); modes below are always skipped
+FACTOR_FLUSH = 1e-8  # dimensionless; power-table magnitudes below this become 0
+TABLE_FLUSH = 1e-30  # dimensionless; state-table magnitudes below this become 0
+SUB_BLOCK = 32  # samples; inner period S of the first-block outer product
+MIN_BLOCK = 32  # samples; smallest block size B
+MAX_BLOCK = 512  # samples; largest block size B
+CHUNK_BLOCKS = 256  # blocks per GEMM call (rows of U); GEMM efficiency needs >= ~256
+GROUP_MODES = 2048  # modes per pass; bounds memory in the number of modes
+
+_FLT_MIN = float(np.finfo(np.float32).tiny)  # amplitude units; smallest normal float32
+
+
+def _as_1d(name: str, value) -> np.ndarray:
+    """Convert an array-like to a 1-D float64 array or raise ValueError."""
+    try:
+        arr = np.asarray(value, dtype=np.float64)
+    except (TypeError, ValueError) as exc:
+        raise ValueError(f"{name} must be a 1-D array-like of real numbers") from exc
+    if arr.ndim != 1:
+        raise ValueError(f"{name} must be 1-D (one value per mode), got shape {arr.shape}")
+    return arr
+
+
+def _validate(frequency_hz, t60_s, amplitude, duration, sample_rate, phase):
+    """Check the arguments of :func:`render_modes`; return arrays and sample count."""
+    f = _as_1d("frequency_hz", frequency_hz)
+    t60 = _as_1d("t60_s", t60_s)
+    a = _as_1d("amplitude", amplitude)
+    ph = np.zeros_like(f) if phase is None else _as_1d("phase", phase)
+    m = f.size
+    for name, arr in (("t60_s", t60), ("amplitude", a), ("phase", ph)):
+        if arr.size != m:
+            raise ValueError(
+                f"{name} has {arr.size} values but frequency_hz has {m}; "
+                "all per-mode arrays must have equal length"
+            )
+    if not np.all(np.isfinite(f) & (f >= 0)):
+        raise ValueError("frequency_hz must be finite and >= 0 Hz")
+    if not np.all((t60 > 0) & ~np.isnan(t60)):
+        raise ValueError("t60_s must be > 0 s (np.inf allowed: no decay)")
+    if not np.all(np.isfinite(a)):
+        raise ValueError("amplitude must be finite")
+    if not np.all(np.isfinite(ph)):
+        raise ValueError("phase must be finite (radians)")
+    try:
+        fs = float(sample_rate)
+        dur = float(duration)
+    except (TypeError, ValueError) as exc:
+        raise ValueError("sample_rate and duration must be real scalars") from exc
+    if not (math.isfinite(fs) and fs > 0):
+        raise ValueError("sample_rate must be finite and > 0 Hz")
+    if not (math.isfinite(dur) and dur >= 0):
+        raise ValueError("duration must be finite and >= 0 s")
+    return f, t60, a, ph, fs, round(dur * fs)
+
+
+def _exponents(frequency_hz, t60_s, sample_rate):
+    """Per-sample complex exponents s_m = -sigma_m + i omega_m (float64).
+
+    sigma_m = ln(1000) / (T60_m fs) [1/sample], omega_m = 2 pi f_m / fs [rad/sample].
+    """
+    sigma = LN_1000 / (t60_s * sample_rate)  # T60 = inf gives 0
+    omega = (2.0 * np.pi / sample_rate) * frequency_hz
+    return sigma, omega
+
+
+def _powers(s: np.ndarray, count: int, step: int = 1) -> np.ndarray:
+    """Return exp(j * step * s) for j = 0 .. count-1, shape (count, M), complex128.
+
+    Built by doubling: rows [L, 2L) are rows [0, L) times exp(L step s), the
+    factor coming from a direct ``exp``.  Row j is a product of popcount(j)
+    exact factors, so its relative error is at most ~log2(count) ulp (float64).
+    """
+    out = np.empty((count, s.size), np.complex128)
+    if count == 0:
+        return out
+    out[0] = 1.0
+    length = 1
+    while length < count:
+        n = min(length, count - length)
+        np.multiply(out[:n], np.exp((length * step) * s), out=out[length : length + n])
+        length *= 2
+    return out
+
+
+def _flush(table: np.ndarray, level: float, rate: np.ndarray) -> np.ndarray:
+    """Set entries of a power table with magnitude below ``level`` to 0 (in place).
+
+    ``rate`` is each column's decay per row (nepers); only columns that can
+    fall below ``level`` within the table are examined.  Keeps float32 GEMM
+    operands out of the subnormal range, where this class of CPU runs sgemm
+    about 50x slower.
+    """
+    cols = np.flatnonzero(rate * (table.shape[0] - 1) > -math.log(level))
+    if cols.size:
+        sub = table[:, cols]
+        sub[np.abs(sub) < level] = 0.0
+        table[:, cols] = sub
+    return table
+
+
+def _first_block(s: np.ndarray, block: int, sub: int = SUB_BLOCK) -> np.ndarray:
+    """The B x M matrix z_m^r, r < B, as complex64 (``P`` of the module notes).
+
+    Computed as the outer product z^(jS) * z^l (r = jS + l) of two float64
+    doubling tables, each flushed below FACTOR_FLUSH, then one complex64
+    multiply.  Nonzero entries are >= FACTOR_FLUSH**2 in magnitude; the
+    flushed ones are < FACTOR_FLUSH (an error <= 1e-8 |a_m| per mode).
+    """
+    sub = min(sub, block)
+    hi = _flush(_powers(s, block // sub, sub), FACTOR_FLUSH, -sub * s.real)
+    lo = _flush(_powers(s, sub), FACTOR_FLUSH, -s.real)
+    hi, lo = hi.astype(np.complex64), lo.astype(np.complex64)
+    out = np.empty((block // sub, sub, s.size), np.complex64)
+    np.multiply(hi[:, None, :], lo[None, :, :], out=out)
+    return out.reshape(block, s.size)
+
+
+def _state_table(s: np.ndarray, block: int, count: int) -> np.ndarray:
+    """conj(z_m^(jB)) for j < count, complex64, shape (count, M)."""
+    table = _flush(_powers(np.conj(s), count, block), TABLE_FLUSH, -block * s.real)
+    return table.astype(np.complex64)
+
+
+def _chunk_states(s, coef, table, start, kc, block, death, live):
+    """Interleaved float32 GEMM operand U for blocks start/B .. +kc of live modes.
+
+    ``u[k, m] = i conj(c_m z_m^(start + kB))``; the chunk-start state is one
+    direct float64 ``exp`` (exact at any ``start``), later blocks multiply by
+    the per-render ``table``.  Entries of blocks starting at or after a mode's
+    death sample are set to 0.  Returns a (kc, 2 live) float32 array.
+    """
+    v = coef[:live] * np.exp(start * np.conj(s[:live]))
+    u = np.multiply(table[:kc, :live], v.astype(np.complex64))
+    # Modes dying inside this chunk are the tail of the sorted prefix.
+    end = start + kc * block
+    first_dying = int(np.searchsorted(-death[:live], -end, side="left"))
+    if first_dying < live:
+        alive_blocks = np.ceil((death[first_dying:live] - start) / block)
+        dead = np.arange(kc)[:, None] >= alive_blocks[None, :]
+        np.copyto(u[:, first_dying:live], 0, where=dead)
+    return u.view(np.float32)
+
+
+def _death_samples(abs_amp, sigma, floor):
+    """Sample index after which each mode's envelope |a| e^(-sigma n) < threshold.
+
+    threshold = max(floor * sum|a| / M, MIN_ENVELOPE), so the modes skipped at
+    any instant sum to less than floor * sum|a| (or M * MIN_ENVELOPE).
+    Modes with sigma = 0 (T60 = inf) above threshold never die (+inf); modes
+    starting at or below it are dead from sample 0 (-1).
+    """
+    m = abs_amp.size
+    thr = max(floor * float(abs_amp.sum()) / m, MIN_ENVELOPE) if m else MIN_ENVELOPE
+    death = np.full(m, -1.0)
+    alive = abs_amp > thr
+    decays = alive & (sigma > 0)
+    death[decays] = np.log(abs_amp[decays] / thr) / sigma[decays]
+    death[alive & (sigma == 0)] = np.inf
+    return death
+
+
+def _choose_block(n_samples: int) -> int:
+    """Block size B: a power of two giving >= CHUNK_BLOCKS blocks when possible."""
+    b = MAX_BLOCK
+    while b > MIN_BLOCK and n_samples < b * CHUNK_BLOCKS:
+        b //= 2
+    return b
+
+
+def _render_group(out, s, coef, death, block, chunk, accumulate):
+    """Render (or add) the modes of one group into ``out`` (float32, 1-D)."""
+    n = out.size
+    first = _first_block(s, block)
+    p_t = first.view(np.float32).T  # (2M, B), F-ordered: no copy in matmul
+    table = _state_table(s, block, min(chunk, -(-n // block)))
+    neg_death = -death
+    scratch = None
+    for start in range(0, n, chunk * block):
+        stop = min(start + chunk * block, n)
+        live = int(np.searchsorted(neg_death, -start, side="left"))  # death > start
+        if live == 0:
+            if not accumulate:
+                out[start:stop] = 0.0
+            continue
+        kc = -(-(stop - start) // block)
+        u = _chunk_states(s, coef, table, start, kc, block, death, live)
+        lhs = p_t[: 2 * live]
+        full = (stop - start) // block
+        if full:
+            dst = out[start : start + full * block].reshape(full, block)
+            if accumulate:
+                if scratch is None or scratch.shape[0] < full:
+                    scratch = np.empty((full, block), np.float32)
+                np.matmul(u[:full], lhs, out=scratch[:full])
+                dst += scratch[:full]
+            else:
+                np.matmul(u[:full], lhs, out=dst)
+        rest = stop - start - full * block
+        if rest:
+            tail = u[full] @ lhs[:, :rest]
+            if accumulate:
+                out[stop - rest : stop] += tail
+            else:
+                out[stop - rest : stop] = tail
+
+
+def render_modes(
+    frequency_hz,
+    t60_s,
+    amplitude,
+    duration,
+    sample_rate,
+    phase=None,
+    *,
+    floor: float = DEFAULT_FLOOR,
+    block_size: int | None = None,
+    chunk_blocks: int = CHUNK_BLOCKS,
+) -> np.ndarray:
+    """Render a sum of exponentially decaying sinusoids.
+
+    Parameters
+    ----------
+    frequency_hz : array_like, shape (M,)
+        Mode frequencies f_m in Hz, finite, >= 0.  Modes at or above the
+        Nyquist frequency ``sample_rate / 2`` are rendered as the formula
+        samples them (i.e. aliased); callers that do not want them drop them.
+    t60_s : array_like, shape (M,)
+        Time for each mode to decay by 60 dB, in seconds, > 0; ``np.inf``
+        means no decay.
+    amplitude : array_like, shape (M,)
+        Initial amplitudes a_m (output units), finite, any sign.
+    duration : float
+        Length in seconds, finite, >= 0.
+    sample_rate : float
+        Sample rate fs in Hz, finite, > 0.
+    phase : array_like, shape (M,), optional
+        Initial phases phi_m in radians, finite; None means all zero.
+    floor : float, keyword-only
+        Work-skipping floor as a fraction of sum|a_m| (default
+        ``DEFAULT_FLOOR`` = 1e-7, -140 dB).  A mode stops being computed once
+        |a_m| exp(-sigma_m n) < floor * sum|a| / M, so the skipped modes add
+        up to less than floor * sum|a| at any sample.  0 disables skipping
+        except below the absolute ``MIN_ENVELOPE``.  Modes with T60 = inf
+        never stop.
+    block_size : int, optional, keyword-only
+        Samples per block B (multiple of 32); default chosen from the length.
+    chunk_blocks : int, keyword-only
+        Blocks per GEMM call (default ``CHUNK_BLOCKS``); skipping is decided
+        per chunk, memory grows with it, speed needs it >= ~256.
+
+    Returns
+    -------
+    numpy.ndarray
+        float32, shape ``(round(duration * sample_rate),)``.
+
+    Raises
+    ------
+    ValueError
+        If an argument is outside the ranges above or the lengths differ.
+
+    Notes
+    -----
+    Evaluates, for n = 0 .. N-1 and t = n / fs,
+
+    .. math:: y(t) = \\sum_m a_m e^{-\\ln(1000) t / T_{60,m}}
+              \\sin(2\\pi f_m t + \\phi_m)
+
+    blockwise as float32 GEMMs on float64-exact states (see the module
+    docstring).  Error sources: float32 rounding of the GEMM operands and
+    sums (about 1e-7 of each term, with no growth along the signal), work
+    skipping (< floor * sum|a|), and the subnormal guards (power-table
+    entries below 1e-8 and envelopes below ``MIN_ENVELOPE`` are zeroed).
+    Memory beyond the output is O(M (B + chunk_blocks)) for M up to
+    ``GROUP_MODES`` modes per pass, independent of the duration.  BLAS
+    threading is left to the caller's settings (OpenBLAS uses all cores for
+    the GEMM); see benchmarks/README.md for the measurements behind the
+    defaults.
+
+    References
+    ----------
+    .. [1] J.-M. Adrien, "The missing link: modal synthesis", in G. De Poli,
+       A. Piccialli and C. Roads (eds.), *Representations of Musical
+       Signals*, MIT Press, 1991.
+    .. [2] K. Goto and R. van de Geijn, "Anatomy of high-performance matrix
+       multiplication", ACM Trans. Math. Softw. 34(3), 2008.
+    """
+    f, t60, a, ph, fs, n = _validate(frequency_hz, t60_s, amplitude, duration, sample_rate, phase)
+    if not (math.isfinite(floor) and floor >= 0):
+        raise ValueError("floor must be finite and >= 0 (fraction of sum|amplitude|)")
+    block = _choose_block(n) if block_size is None else int(block_size)
+    if block < 1 or (block > SUB_BLOCK and block % SUB_BLOCK):
+        raise ValueError(f"block_size must be a positive multiple of {SUB_BLOCK}")
+    if chunk_blocks < 1:
+        raise ValueError("chunk_blocks must be >= 1")
+    out = np.zeros(n, np.float32)
+    if n == 0 or f.size == 0:
+        return out
+    sigma, omega = _exponents(f, t60, fs)
+    death = _death_samples(np.abs(a), sigma, floor)
+    order = np.argsort(-death, kind="stable")
+    order = order[death[order] >= 0]  # drop modes that are never alive
+    for g in range(0, order.size, GROUP_MODES):
+        idx = order[g : g + GROUP_MODES]
+        s = -sigma[idx] + 1j * omega[idx]
+        coef = 1j * a[idx] * np.exp(-1j * ph[idx])  # i conj(a e^{i phi})
+        _render_group(out, s, coef, death[idx], block, chunk_blocks, accumulate=g > 0)
+    return out

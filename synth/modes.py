@@ -1,0 +1,306 @@
+"""ModeSet and PartialTable: what a resonator computes and what gets rendered.
+
+A resonator module returns a :class:`ModeSet` (frequencies, labels, mode-shape
+values at the excitation and pickup points, extra per-mode columns).  The
+pipeline weights it into a :class:`PartialTable` (amplitude, phase and T60 of
+every mode), which the engine renders and the report prints as text, JSON or
+CSV.
+"""
+from __future__ import annotations
+
+import csv
+import io
+import json
+import math
+from dataclasses import dataclass, field
+
+import numpy as np
+
+__all__ = ["ModeSet", "PartialTable", "frozen_array", "table_to_dict", "table_to_text", "table_to_csv"]
+
+#: |shape| below this fraction of the largest |shape| counts as a node.
+NODE_TOLERANCE = 1e-9
+
+
+def frozen_array(values, dtype=float):
+    """A read-only copy of `values` as a 1-D numpy array."""
+    array = np.array(values, dtype=dtype).reshape(-1)
+    array.flags.writeable = False
+    return array
+
+
+@dataclass(frozen=True)
+class ModeSet:
+    """The modes of one resonator, sorted by frequency.
+
+    Attributes
+    ----------
+    resonator : str
+        Resonator type, e.g. ``"string"``.
+    frequency_hz : ndarray [shape=(M,)], Hz
+        Mode frequencies, ascending.
+    labels : tuple of str [len M]
+        Mode labels, e.g. ``"n=3"`` or ``"(1,2)"``.
+    excitation_shape, pickup_shape : ndarray [shape=(M,)]
+        Mode-shape values at the excitation and pickup points.  Shapes are
+        scaled to a common modal mass, so values of different modes compare.
+    columns : dict of str -> tuple
+        Extra per-mode report columns (name -> M values), e.g. wavelength.
+    parameters : dict
+        Resolved physical values (solved tension, stress, ...), SI units.
+    warnings : tuple of str
+        Anything the user should know (stress near breaking, dropped modes).
+    """
+
+    resonator: str
+    frequency_hz: np.ndarray
+    labels: tuple
+    excitation_shape: np.ndarray
+    pickup_shape: np.ndarray
+    columns: dict = field(default_factory=dict)
+    parameters: dict = field(default_factory=dict)
+    warnings: tuple = ()
+
+    def __post_init__(self):
+        n = len(self.frequency_hz)
+        for name in ("excitation_shape", "pickup_shape"):
+            if len(getattr(self, name)) != n:
+                raise ValueError(f"{name} has {len(getattr(self, name))} values, expected {n}")
+        if len(self.labels) != n:
+            raise ValueError(f"labels has {len(self.labels)} values, expected {n}")
+        for name, values in self.columns.items():
+            if len(values) != n:
+                raise ValueError(f"column {name!r} has {len(values)} values, expected {n}")
+        if n and np.any(np.diff(self.frequency_hz) < 0):
+            raise ValueError("frequency_hz must be sorted ascending")
+
+    def select(self, keep):
+        """A ModeSet of the modes where boolean mask (or index array) `keep` holds."""
+        index = np.arange(len(self.frequency_hz))[keep]
+        return ModeSet(
+            resonator=self.resonator,
+            frequency_hz=frozen_array(self.frequency_hz[index]),
+            labels=tuple(self.labels[i] for i in index),
+            excitation_shape=frozen_array(self.excitation_shape[index]),
+            pickup_shape=frozen_array(self.pickup_shape[index]),
+            columns={k: tuple(v[i] for i in index) for k, v in self.columns.items()},
+            parameters=dict(self.parameters),
+            warnings=self.warnings,
+        )
+
+
+@dataclass(frozen=True)
+class PartialTable:
+    """The partials that get rendered, with everything the report shows.
+
+    Attributes
+    ----------
+    name, resonator : str
+    fundamental_hz : float, Hz
+        Frequency of the lowest mode of the object.
+    frequency_hz, amplitude, phase, t60_s : ndarray [shape=(M,)]
+        What the engine renders: ``a sin(2 pi f t + phase) e^(-ln(1000) t / T60)``.
+    level_db : ndarray [shape=(M,)], dB
+        Level relative to the strongest mode; NaN where the excitation or the
+        pickup sits on a node of the mode (null in JSON).
+    labels : tuple of str
+    columns : dict of str -> tuple
+        Extra per-mode columns from the resonator.
+    parameters : dict
+    warnings : tuple of str
+    """
+
+    name: str
+    resonator: str
+    fundamental_hz: float
+    frequency_hz: np.ndarray
+    amplitude: np.ndarray
+    phase: np.ndarray
+    t60_s: np.ndarray
+    level_db: np.ndarray
+    labels: tuple
+    columns: dict = field(default_factory=dict)
+    parameters: dict = field(default_factory=dict)
+    warnings: tuple = ()
+
+    @property
+    def ratio(self):
+        """Frequency of each mode over the fundamental."""
+        return self.frequency_hz / self.fundamental_hz
+
+    @property
+    def cents_from_harmonic(self):
+        """Cents from the nearest whole-number multiple of the fundamental."""
+        ratio = self.ratio
+        harmonic = np.maximum(1.0, np.round(ratio))
+        return 1200.0 * np.log2(ratio / harmonic)
+
+
+def _clean(value):
+    """A JSON-safe form of `value` (NaN/inf -> None, numpy -> python)."""
+    if isinstance(value, (list, tuple, np.ndarray)):
+        return [_clean(v) for v in value]
+    if isinstance(value, dict):
+        return {k: _clean(v) for k, v in value.items()}
+    if isinstance(value, (np.integer,)):
+        return int(value)
+    if isinstance(value, (float, np.floating)):
+        value = float(value)
+        return value if math.isfinite(value) else None
+    return value
+
+
+def table_to_dict(table):
+    """The partial table as the JSON object described in DESIGN.md."""
+    modes = []
+    ratio, cents = table.ratio, table.cents_from_harmonic
+    for i in range(len(table.frequency_hz)):
+        mode = {
+            "index": i + 1,
+            "label": table.labels[i],
+            "frequency_hz": float(table.frequency_hz[i]),
+            "ratio": float(ratio[i]),
+            "cents_from_harmonic": float(cents[i]),
+            "t60_s": float(table.t60_s[i]),
+            "level_db": float(table.level_db[i]),
+            "amplitude": float(table.amplitude[i]),
+            "phase_rad": float(table.phase[i]),
+        }
+        for key, values in table.columns.items():
+            mode[key] = values[i]
+        modes.append(mode)
+    return _clean(
+        {
+            "name": table.name,
+            "resonator": table.resonator,
+            "fundamental_hz": table.fundamental_hz,
+            "parameters": table.parameters,
+            "modes": modes,
+            "warnings": list(table.warnings),
+        }
+    )
+
+
+def table_to_json(table):
+    """The partial table as a JSON string."""
+    return json.dumps(table_to_dict(table), indent=2)
+
+
+def table_to_csv(table):
+    """The partial table as CSV text, one row per mode (lists joined by spaces)."""
+    data = table_to_dict(table)
+    buffer = io.StringIO()
+    if not data["modes"]:
+        return ""
+    writer = csv.DictWriter(buffer, fieldnames=list(data["modes"][0]), lineterminator="\n")
+    writer.writeheader()
+    for mode in data["modes"]:
+        row = {k: (" ".join(_fmt(x, 6) for x in v) if isinstance(v, list) else _fmt(v, 10)) for k, v in mode.items()}
+        writer.writerow(row)
+    return buffer.getvalue()
+
+
+def _fmt(value, digits):
+    if value is None:
+        return ""
+    if isinstance(value, float):
+        return f"{value:.{digits}g}"
+    return str(value)
+
+
+# Report columns of the text table: (header, json key, format).
+_TEXT_COLUMNS = (
+    ("#", "index", "{:d}"),
+    ("mode", "label", "{}"),
+    ("freq Hz", "frequency_hz", "{:.2f}"),
+    ("ratio", "ratio", "{:.4f}"),
+    ("cents", "cents_from_harmonic", "{:+.1f}"),
+    ("T60 s", "t60_s", "{:.3g}"),
+    ("level dB", "level_db", "{:.1f}"),
+)
+
+#: Extra columns a resonator may add, with their text header and format.
+EXTRA_TEXT_COLUMNS = {
+    "harmonic": ("harm", "{:d}"),
+    "overtone": ("ovt", "{:d}"),
+    "wavelength_m": ("wavelen m", "{:.4g}"),
+    "n_nodes": ("nodes", "{:d}"),
+    "n_antinodes": ("antinodes", "{:d}"),
+    "node_positions": ("node positions (fraction of length)", None),
+    "nodal_lines": ("nodal lines", "{}"),
+}
+
+
+def _positions_text(values, limit=5):
+    text = " ".join(f"{v:.3g}" for v in values[:limit])
+    if len(values) > limit:
+        text += f" ... ({len(values)})"
+    return text
+
+
+def table_to_text(table, *, max_rows=None):
+    """The partial table as an aligned text table, with parameters and warnings.
+
+    Parameters
+    ----------
+    table : PartialTable
+    max_rows : int or None
+        Show only the first `max_rows` modes (and say how many were left out).
+    """
+    data = table_to_dict(table)
+    columns = list(_TEXT_COLUMNS)
+    for key in table.columns:
+        if key in EXTRA_TEXT_COLUMNS:
+            header, fmt = EXTRA_TEXT_COLUMNS[key]
+            columns.append((header, key, fmt))
+    rows = []
+    modes = data["modes"] if max_rows is None else data["modes"][:max_rows]
+    for mode in modes:
+        row = []
+        for _header, key, fmt in columns:
+            value = mode.get(key)
+            if value is None:
+                row.append("null" if key == "level_db" else "")
+            elif fmt is None:
+                row.append(_positions_text(value))
+            else:
+                row.append(fmt.format(value))
+        rows.append(row)
+    headers = [c[0] for c in columns]
+    widths = [max([len(h)] + [len(r[i]) for r in rows]) for i, h in enumerate(headers)]
+    lines = [f"{table.name} ({table.resonator}), fundamental {table.fundamental_hz:.3f} Hz, {len(table.frequency_hz)} modes"]
+    lines += [_parameter_line(k, v) for k, v in data["parameters"].items()]
+    lines.append("  ".join(h.rjust(w) if i != 1 and i < 7 else h.ljust(w) for i, (h, w) in enumerate(zip(headers, widths))).rstrip())
+    for row in rows:
+        lines.append("  ".join(c.rjust(w) if i != 1 and i < 7 else c.ljust(w) for i, (c, w) in enumerate(zip(row, widths))).rstrip())
+    if max_rows is not None and len(data["modes"]) > max_rows:
+        lines.append(f"... {len(data['modes']) - max_rows} more modes (synth modes PATCH lists them all)")
+    lines += [f"warning: {w}" for w in data["warnings"]]
+    return "\n".join(lines)
+
+
+#: Parameter-name suffix -> (unit shown, scale applied) for the text report.
+_PARAMETER_UNITS = (
+    ("_percent_of_strength", "%", 1.0),
+    ("_kg_m", "kg/m", 1.0),
+    ("_m_s", "m/s", 1.0),
+    ("_pa", "MPa", 1e-6),
+    ("_hz", "Hz", 1.0),
+    ("_n", "N", 1.0),
+    ("_m", "m", 1.0),
+    ("_s", "s", 1.0),
+)
+
+
+def _parameter_line(key, value):
+    label, unit, scale = key, "", 1.0
+    for suffix, unit_text, factor in _PARAMETER_UNITS:
+        if key.endswith(suffix):
+            label, unit, scale = key[: -len(suffix)], unit_text, factor
+            break
+    if isinstance(value, float):
+        value = f"{value * scale:.6g}"
+    elif value is None:
+        value = "unknown"
+    label = "stress / tensile strength" if key == "stress_percent_of_strength" else label.replace("_", " ")
+    return f"  {label}: {value}{' ' + unit if unit and value != 'unknown' else ''}"

@@ -1,0 +1,374 @@
+"""Patch files: YAML -> validated :class:`Patch` in SI units.
+
+Every error is a :class:`~synth.errors.PatchError` naming the file, the line,
+the dotted key and what is allowed.  YAML is read with the safe loader only.
+"""
+from __future__ import annotations
+
+import copy
+import math
+from dataclasses import dataclass, field, replace
+
+from .errors import PatchError
+from .excitation import EXCITATIONS
+from .materials import MATERIALS, Material
+from .resonators import RESONATOR_TYPES, retune_spec
+from .resonators.string import StringSpec
+from .schema import Field, Section, check_keys, read_section
+from .yamlio import LineDict, load_yaml_file, load_yaml_text
+
+__all__ = [
+    "Patch",
+    "Excitation",
+    "Pickup",
+    "Damping",
+    "RenderSettings",
+    "load_patch",
+    "patch_from_text",
+    "patch_from_mapping",
+    "retune",
+    "MAX_MODES",
+    "MEMORY_LIMIT_BYTES",
+    "estimate_render_bytes",
+]
+
+#: Largest mode count a patch may ask for.
+MAX_MODES = 20000
+#: Renders estimated to need more memory than this are refused (a workstation's
+#: memory; common practice for a desktop machine, not a measured limit).
+MEMORY_LIMIT_BYTES = 16 * 2**30
+#: Working bytes per output sample (float32 signal, float64 while normalising,
+#: the converted output) and per mode (table, report and engine state).
+BYTES_PER_SAMPLE = 16
+BYTES_PER_MODE = 4096
+
+
+@dataclass(frozen=True)
+class Point:
+    """A position on the object: ``style`` is "fraction", "xy" or "polar".
+
+    fraction: (x,) fraction of the length; xy: (x, y) fractions of width and
+    height; polar: (radius fraction, angle in rad).
+    """
+
+    style: str
+    values: tuple
+
+
+@dataclass(frozen=True)
+class Excitation:
+    kind: str = "pluck"
+    position: Point | None = None
+    contact_time: float = 1e-3  # s
+    strength: float = 1.0
+
+
+@dataclass(frozen=True)
+class Pickup:
+    position: Point | None = None  # None: every mode weighted 1
+
+
+@dataclass(frozen=True)
+class Damping:
+    t60: float = 3.0  # s, at the fundamental
+    t60_high: float | None = None  # s, at high_frequency
+    high_frequency: float = 4000.0  # Hz
+    release_t60: float = 0.15  # s, after note-off
+
+
+@dataclass(frozen=True)
+class RenderSettings:
+    duration: float = 3.0  # s
+    sample_rate: float = 48000.0  # Hz
+    bit_depth: int = 24
+    peak_db: float | None = -1.0  # dBFS; None keeps the absolute scale
+    max_modes: int = 256
+
+
+@dataclass(frozen=True)
+class Patch:
+    """A validated patch.  `lines` maps dotted keys to their line in `source`."""
+
+    name: str
+    resonator: object
+    excitation: Excitation
+    pickup: Pickup
+    damping: Damping
+    render: RenderSettings
+    source: str = "<patch>"
+    lines: dict = field(default_factory=dict, compare=False)
+
+    def error(self, key, message):
+        """A PatchError for dotted `key`, naming this patch's file and line."""
+        return PatchError(message, file=self.source, line=self.lines.get(key), key=key)
+
+
+_TOP = {
+    "name": Field("slug", required=True),
+    "resonator": Field("any", required=True),
+    "excitation": Field("any"),
+    "pickup": Field("any"),
+    "damping": Field("any"),
+    "render": Field("any"),
+}
+
+_MATERIAL_FIELDS = {
+    "density": Field("density", required=True, positive=True),
+    "youngs_modulus": Field("pressure", required=True, low=0.0),
+    "poisson_ratio": Field("number", low=-1.0, high=0.5, default=0.3),
+    "tensile_strength": Field("pressure", positive=True, nullable=True),
+}
+
+_STRING_FIELDS = {
+    "type": Field("choice", required=True, choices=RESONATOR_TYPES),
+    "material": Field("any", required=True),
+    "length": Field("length", required=True, positive=True),
+    "diameter": Field("length", required=True, positive=True),
+    "pitch": Field("pitch", positive=True),
+    "tension": Field("force", positive=True),
+    "ends": Field("choice", default="pinned", choices=("pinned", "clamped")),
+}
+
+_POSITION_1D = Field("number", low=0.0, high=1.0)
+
+_EXCITATION_FIELDS = {
+    "type": Field("choice", default="pluck", choices=EXCITATIONS),
+    "position": Field("any"),
+    "contact_time": Field("time", default=1e-3, low=0.0, high=1.0),
+    "strength": Field("number", default=1.0, low=0.0, high=1e6),
+}
+
+_DAMPING_FIELDS = {
+    "t60": Field("time", default=3.0, positive=True, high=3600.0),
+    "t60_high": Field("time", positive=True, high=3600.0),
+    "high_frequency": Field("frequency", default=4000.0, positive=True),
+    "release_t60": Field("time", default=0.15, positive=True, high=3600.0),
+}
+
+_RENDER_FIELDS = {
+    "duration": Field("time", default=3.0, positive=True),
+    "sample_rate": Field("frequency", default=48000.0, low=1000.0, high=768000.0),
+    "bit_depth": Field("choice", default=24, choices=(16, 24, 32)),
+    "peak_db": Field("level", default=-1.0, nullable=True, high=0.0, low=-120.0),
+    "max_modes": Field("int", default=256, low=1, high=MAX_MODES),
+}
+
+
+def material_from(section, key="material"):
+    """A :class:`Material` from a name or a mapping of constants."""
+    value = section.mapping.get(key)
+    if isinstance(value, str):
+        if value not in MATERIALS:
+            import difflib
+
+            close = difflib.get_close_matches(value, list(MATERIALS), n=1)
+            hint = f"; did you mean {close[0]!r}?" if close else ""
+            raise section.error(key, f"unknown material {value!r}{hint} (known: {', '.join(sorted(MATERIALS))}; or give a mapping of density, youngs_modulus, poisson_ratio, tensile_strength)")
+        return MATERIALS[value]
+    if isinstance(value, dict):
+        values = read_section(section.child(key), _MATERIAL_FIELDS)
+        return Material("custom", values["density"], values["youngs_modulus"], values["poisson_ratio"], values["tensile_strength"], source="patch")
+    raise section.error(key, f"must be a material name ({', '.join(sorted(MATERIALS))}) or a mapping of constants")
+
+
+def _build_string(section):
+    values = read_section(section, _STRING_FIELDS, context=" for a string")
+    if (values["pitch"] is None) == (values["tension"] is None):
+        raise section.error("pitch" if values["pitch"] is not None else None, "give exactly one of 'pitch' (the tension is solved) or 'tension'")
+    material = material_from(section)
+    return StringSpec(
+        length=values["length"],
+        diameter=values["diameter"],
+        density=material.density,
+        youngs_modulus=material.youngs_modulus,
+        tension=values["tension"],
+        pitch_hz=values["pitch"],
+        ends=values["ends"],
+        tensile_strength=material.strength_at(values["diameter"]),
+        material=material.name,
+    )
+
+
+#: Resonator type -> (builder from a Section, position style)
+_BUILDERS = {"string": (_build_string, "fraction")}
+
+
+def _position(section, key, style, default):
+    """Read a position of the given style (fraction / xy / polar)."""
+    if key not in section.mapping:
+        return default
+    value = section.mapping[key]
+    if style == "fraction":
+        try:
+            from .schema import convert
+
+            return Point("fraction", (convert(_POSITION_1D, value),))
+        except ValueError as error:
+            raise section.error(key, f"{error} (a fraction of the length, 0..1)") from None
+    raise section.error(key, f"positions of style {style!r} are not supported")  # pragma: no cover
+
+
+def _sections(top, file):
+    sections = {}
+    for key in ("excitation", "pickup", "damping", "render"):
+        if key in top.mapping and top.mapping[key] is not None:
+            sections[key] = top.child(key)
+        else:
+            sections[key] = Section(LineDict(), file=file, path=key)
+    return sections
+
+
+def patch_from_mapping(mapping, *, file="<patch>", overrides=None):
+    """Validate a parsed YAML mapping into a :class:`Patch`.
+
+    Parameters
+    ----------
+    mapping : dict (ideally a LineDict, for line numbers)
+    file : str
+        Name for error messages.
+    overrides : dict or None
+        ``{"render.duration": (value, "--duration"), ...}``: values set from
+        the command line; their errors name the option instead of a line.
+    """
+    if not isinstance(mapping, dict):
+        raise PatchError("a patch must be a mapping with keys name, resonator, excitation, pickup, damping, render", file=file, line=1)
+    mapping = _apply_overrides(mapping, overrides or {}, file)
+    top = Section(mapping, file=file)
+    top_values = read_section(top, _TOP)
+    resonator = top.child("resonator")
+    kind = resonator.mapping.get("type")
+    if kind not in _BUILDERS:
+        from .schema import convert
+
+        try:
+            convert(Field("choice", choices=tuple(_BUILDERS)), kind)
+        except ValueError as error:
+            raise resonator.error("type" if "type" in resonator.mapping else None, str(error) if kind is not None else f"missing required key 'resonator.type' (allowed: {', '.join(_BUILDERS)})") from None
+    builder, style = _BUILDERS[kind]
+    try:
+        spec = builder(resonator)
+    except ValueError as error:
+        if isinstance(error, PatchError):
+            raise
+        raise resonator.error(None, str(error)) from None
+    sections = _sections(top, file)
+    exc = sections["excitation"]
+    exc_values = read_section(exc, _EXCITATION_FIELDS)
+    excitation = Excitation(
+        kind=exc_values["type"],
+        position=_position(exc, "position", style, Point("fraction", (0.2,))),
+        contact_time=exc_values["contact_time"],
+        strength=exc_values["strength"],
+    )
+    pick = sections["pickup"]
+    check_keys(pick, {"position"})
+    pickup = Pickup(position=_position(pick, "position", style, None))
+    damp_values = read_section(sections["damping"], _DAMPING_FIELDS)
+    if damp_values["t60_high"] is not None and damp_values["t60_high"] > damp_values["t60"]:
+        raise sections["damping"].error("t60_high", f"must not exceed t60 ({damp_values['t60']:g} s): higher partials decay faster")
+    render_values = read_section(sections["render"], _RENDER_FIELDS)
+    render = RenderSettings(**render_values)
+    lines = _collect_lines(mapping)
+    patch = Patch(
+        name=top_values["name"],
+        resonator=spec,
+        excitation=excitation,
+        pickup=pickup,
+        damping=Damping(**damp_values),
+        render=render,
+        source=file,
+        lines=lines,
+    )
+    _check_size(patch, sections["render"])
+    return patch
+
+
+def _apply_overrides(mapping, overrides, file):
+    if not overrides:
+        return mapping
+    mapping = copy.deepcopy(mapping)
+    for dotted, (value, option) in overrides.items():
+        section_name, key = dotted.split(".")
+        section = mapping.get(section_name)
+        if not isinstance(section, dict):
+            section = LineDict()
+            mapping[section_name] = section
+        if key == "pitch" and section_name == "resonator":
+            for other in ("tension",):
+                section.pop(other, None)
+        section[key] = value
+        if hasattr(section, "lines"):
+            section.lines[key] = None
+        try:
+            if dotted.startswith("render.") and key in _RENDER_FIELDS:
+                from .schema import convert
+
+                convert(_RENDER_FIELDS[key], value)
+        except ValueError as error:
+            raise PatchError(str(error), file="command line", key=option) from None
+    return mapping
+
+
+def _collect_lines(mapping, prefix=""):
+    lines = {}
+    for key, value in mapping.items():
+        dotted = f"{prefix}{key}"
+        line = getattr(mapping, "lines", {}).get(key)
+        if line is not None:
+            lines[dotted] = line
+        if isinstance(value, dict):
+            lines.update(_collect_lines(value, dotted + "."))
+    return lines
+
+
+def estimate_render_bytes(duration, sample_rate, n_modes):
+    """Rough working memory (bytes) of a render: samples and modes."""
+    return round(duration * sample_rate) * BYTES_PER_SAMPLE + n_modes * BYTES_PER_MODE
+
+
+def _check_size(patch, render_section):
+    need = estimate_render_bytes(patch.render.duration, patch.render.sample_rate, patch.render.max_modes)
+    if need > MEMORY_LIMIT_BYTES:
+        raise PatchError(
+            f"this render would need about {need / 2**30:.1f} GiB of memory, more than a workstation has "
+            f"(limit {MEMORY_LIMIT_BYTES / 2**30:.0f} GiB): shorten render.duration or lower render.sample_rate",
+            file=patch.source,
+            line=patch.lines.get("render.duration"),
+            key="render.duration",
+        )
+
+
+def load_patch(path, *, overrides=None):
+    """Load and validate the patch file at `path`.
+
+    Parameters
+    ----------
+    path : str or os.PathLike
+    overrides : dict or None
+        See :func:`patch_from_mapping`.
+
+    Returns
+    -------
+    Patch
+
+    Raises
+    ------
+    PatchError
+        Naming the file, line and key of the first problem.
+    """
+    return patch_from_mapping(load_yaml_file(path), file=str(path), overrides=overrides)
+
+
+def patch_from_text(text, *, file="<text>", overrides=None):
+    """Validate a patch given as YAML text."""
+    return patch_from_mapping(load_yaml_text(text, file=file), file=file, overrides=overrides)
+
+
+def retune(patch, pitch_hz):
+    """A copy of `patch` whose lowest mode sounds at `pitch_hz`.
+
+    Moves the parameter a maker would move (tension for a string).
+    """
+    if not (math.isfinite(pitch_hz) and pitch_hz > 0):
+        raise ValueError(f"pitch_hz={pitch_hz!r} must be > 0")
+    return replace(patch, resonator=retune_spec(patch.resonator, pitch_hz))

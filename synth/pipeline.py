@@ -1,0 +1,140 @@
+"""Patch -> ModeSet -> PartialTable -> signal: the one-way data flow.
+
+These functions glue the rooms together; they do no file work.
+"""
+from __future__ import annotations
+
+import math
+
+import numpy as np
+
+from .damping import two_point_t60
+from .engine import render_modes
+from .errors import PatchError
+from .excitation import excitation_weights
+from .modes import NODE_TOLERANCE, PartialTable, frozen_array
+from .resonators import resonator_modes, resonator_name
+from .resonators.string import UnreachablePitch
+
+__all__ = ["mode_set", "partial_table", "render_patch"]
+
+
+def _coordinate(point):
+    if point is None:
+        return None
+    if point.style == "fraction":
+        return point.values[0]
+    return point
+
+
+def mode_set(patch):
+    """The resonator's ModeSet for `patch` (all `max_modes`, before Nyquist)."""
+    try:
+        return resonator_modes(
+            patch.resonator,
+            excitation_position=_coordinate(patch.excitation.position),
+            pickup_position=_coordinate(patch.pickup.position),
+            n_modes=patch.render.max_modes,
+        )
+    except UnreachablePitch as error:
+        raise patch.error("resonator.pitch", str(error)) from None
+
+
+def partial_table(patch, *, modes=None):
+    """The partials `patch` renders: weighted, damped, below Nyquist.
+
+    Parameters
+    ----------
+    patch : Patch
+    modes : ModeSet or None
+        Precomputed modes of `patch.resonator` (saves a solve when retuning).
+
+    Returns
+    -------
+    PartialTable
+    """
+    modes = mode_set(patch) if modes is None else modes
+    warnings = list(modes.warnings)
+    nyquist = patch.render.sample_rate / 2.0
+    keep = modes.frequency_hz < nyquist
+    if not np.all(keep):
+        dropped = [modes.labels[i] for i in np.flatnonzero(~keep)]
+        shown = ", ".join(dropped[:3]) + (f" ... {dropped[-1]}" if len(dropped) > 3 else "")
+        warnings.append(
+            f"{len(dropped)} modes at or above Nyquist ({nyquist:g} Hz) left out: {shown}"
+        )
+    if not np.any(keep):
+        raise patch.error(
+            "render.sample_rate",
+            f"every mode is at or above Nyquist ({nyquist:g} Hz): raise render.sample_rate above "
+            f"{2 * modes.frequency_hz[0]:.0f} Hz",
+        )
+    fundamental = float(modes.frequency_hz[0])
+    kept = modes.select(keep)
+    amplitude, phase = excitation_weights(
+        patch.excitation.kind,
+        kept.frequency_hz,
+        kept.excitation_shape,
+        kept.pickup_shape,
+        strength=patch.excitation.strength,
+        contact_time=patch.excitation.contact_time,
+    )
+    damping = patch.damping
+    if damping.t60_high is not None and damping.high_frequency <= fundamental:
+        raise patch.error(
+            "damping.high_frequency",
+            f"must be above the fundamental ({fundamental:.2f} Hz) to set how high partials decay",
+        )
+    t60 = two_point_t60(
+        kept.frequency_hz,
+        t60=damping.t60,
+        fundamental_hz=fundamental,
+        t60_high=damping.t60_high,
+        high_frequency=damping.high_frequency,
+    )
+    scale = np.abs(kept.excitation_shape * kept.pickup_shape)
+    null = scale <= NODE_TOLERANCE * max(float(np.max(scale)), 1e-300)
+    amplitude = np.where(null, 0.0, amplitude)
+    peak = float(np.max(amplitude)) if amplitude.size else 0.0
+    if peak <= 0.0 or patch.excitation.strength == 0.0:
+        raise patch.error(
+            "excitation.position",
+            "nothing would sound: the excitation or pickup sits on a node of every mode, or strength is 0",
+        )
+    with np.errstate(divide="ignore"):
+        level_db = np.where(null, np.nan, 20.0 * np.log10(np.maximum(amplitude, 1e-300) / peak))
+    return PartialTable(
+        name=patch.name,
+        resonator=resonator_name(patch.resonator),
+        fundamental_hz=fundamental,
+        frequency_hz=frozen_array(kept.frequency_hz),
+        amplitude=frozen_array(amplitude),
+        phase=frozen_array(phase),
+        t60_s=frozen_array(t60),
+        level_db=frozen_array(level_db),
+        labels=kept.labels,
+        columns=kept.columns,
+        parameters=kept.parameters,
+        warnings=tuple(warnings),
+    )
+
+
+def render_patch(patch, *, table=None):
+    """Render `patch` to a float32 signal at its own scale (not normalised).
+
+    Returns
+    -------
+    signal : ndarray [shape=(round(duration * sample_rate),)], float32
+    table : PartialTable
+    """
+    table = partial_table(patch) if table is None else table
+    audible = table.amplitude > 0
+    signal = render_modes(
+        table.frequency_hz[audible],
+        table.t60_s[audible],
+        table.amplitude[audible],
+        patch.render.duration,
+        patch.render.sample_rate,
+        phase=table.phase[audible],
+    )
+    return signal, table

@@ -1,0 +1,249 @@
+"""Transverse modes of a stiff string with pinned or clamped ends.
+
+Notes
+-----
+Ideal string (Mersenne's laws / Taylor): ``f_n = n / (2 L) * sqrt(T / mu)``
+with ``mu = rho * pi * d**2 / 4``.  Stiffness (Fletcher 1964):
+``f_n = n f_0 sqrt(1 + B n**2)``, ``B = pi**3 E d**4 / (64 T L**2)``; clamped
+ends multiply every frequency by ``1 + 2 sqrt(B) / pi + 4 B / pi**2``.
+A pinned stiff string keeps the mode shapes ``sin(n pi x / L)`` exactly; for
+clamped ends the sine is used as the (close) approximation away from the ends.
+
+References
+----------
+.. [1] H. Fletcher, "Normal vibration frequencies of a stiff piano string",
+   J. Acoust. Soc. Am. 36(1), 203-209 (1964).
+.. [2] N. H. Fletcher and T. D. Rossing, *The Physics of Musical Instruments*,
+   2nd ed., Springer (1998), ch. 2.
+"""
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass
+
+import numpy as np
+from scipy.optimize import brentq
+
+from ..modes import ModeSet, frozen_array
+
+__all__ = [
+    "StringSpec",
+    "string_modes",
+    "linear_density",
+    "inharmonicity",
+    "stiff_string_frequencies",
+    "clamped_factor",
+    "solve_tension",
+    "SAFE_STRESS_FRACTION",
+    "UnreachablePitch",
+]
+
+#: Working stress above this fraction of the tensile strength gets a warning.
+#: Common practice (string makers commonly keep working tension well below
+#: breaking; ~60% is a frequently used ceiling), not a published limit.
+SAFE_STRESS_FRACTION = 0.60
+
+
+class UnreachablePitch(ValueError):
+    """The requested pitch cannot be reached by any positive tension."""
+
+
+@dataclass(frozen=True)
+class StringSpec:
+    """A string in SI units.
+
+    Attributes
+    ----------
+    length : float > 0, m
+    diameter : float > 0, m
+    density : float > 0, kg/m^3
+    youngs_modulus : float >= 0, Pa
+    tension : float > 0 or None, N
+        Give `tension` or `pitch_hz`, not both.
+    pitch_hz : float > 0 or None, Hz
+        Pitch of the lowest partial; the tension is solved for it.
+    ends : {"pinned", "clamped"}
+    tensile_strength : float or None, Pa
+    material : str
+        Name for the report.
+    """
+
+    length: float
+    diameter: float
+    density: float
+    youngs_modulus: float
+    tension: float | None = None
+    pitch_hz: float | None = None
+    ends: str = "pinned"
+    tensile_strength: float | None = None
+    material: str = "custom"
+
+
+def linear_density(density, diameter):
+    """Mass per length (kg/m) of a round solid string: rho pi d^2 / 4."""
+    return density * math.pi * diameter**2 / 4.0
+
+
+def inharmonicity(youngs_modulus, diameter, tension, length):
+    """Fletcher's inharmonicity coefficient B = pi^3 E d^4 / (64 T L^2)."""
+    return math.pi**3 * youngs_modulus * diameter**4 / (64.0 * tension * length**2)
+
+
+def clamped_factor(b):
+    """Fletcher's clamped-end factor 1 + 2 sqrt(B)/pi + 4 B/pi^2."""
+    return 1.0 + 2.0 * math.sqrt(b) / math.pi + 4.0 * b / math.pi**2
+
+
+def stiff_string_frequencies(n, *, length, tension, mu, b, ends="pinned"):
+    """Frequencies (Hz) of modes `n` of a stiff string.
+
+    Parameters
+    ----------
+    n : array_like of int >= 1
+    length : float, m
+    tension : float, N
+    mu : float, kg/m
+    b : float
+        Inharmonicity coefficient.
+    ends : {"pinned", "clamped"}
+    """
+    n = np.asarray(n, dtype=float)
+    f0 = math.sqrt(tension / mu) / (2.0 * length)
+    f = n * f0 * np.sqrt(1.0 + b * n**2)
+    if ends == "clamped":
+        f = f * clamped_factor(b)
+    return f
+
+
+def solve_tension(pitch_hz, *, length, diameter, density, youngs_modulus, ends="pinned"):
+    """Tension (N) that puts the lowest partial of the string at `pitch_hz`.
+
+    Pinned ends have the closed form ``T = 4 L^2 mu f^2 - pi^3 E d^4 / (64 L^2)``
+    (from ``f_1^2 = (T + K) / (4 L^2 mu)``); clamped ends are solved with
+    Brent's method, since the clamped factor depends on B.
+
+    Raises
+    ------
+    UnreachablePitch
+        If the stiffness alone already sounds above `pitch_hz`.
+    """
+    mu = linear_density(density, diameter)
+    k = math.pi**3 * youngs_modulus * diameter**4 / (64.0 * length**2)  # N: B = K / T
+    tension = 4.0 * length**2 * mu * pitch_hz**2 - k
+    if tension <= 0.0:
+        raise UnreachablePitch(_unreachable(pitch_hz, length, mu, k))
+    if ends == "pinned":
+        return tension
+
+    def error(t):
+        return stiff_string_frequencies(1, length=length, tension=t, mu=mu, b=k / t, ends=ends)[()] - pitch_hz
+
+    # Clamping only raises the pitch, so the answer lies below the pinned
+    # tension.  Fletcher's factor is a small-B expansion: search no lower than
+    # B = 1, where it stops being meaningful.
+    high, low = tension, tension
+    while error(low) >= 0.0:
+        low *= 0.5
+        if k / low > 1.0:
+            raise UnreachablePitch(_unreachable(pitch_hz, length, mu, k))
+    return brentq(error, low, high, xtol=1e-12, rtol=1e-14)
+
+
+def _unreachable(pitch_hz, length, mu, k):
+    floor_hz = math.sqrt(k / mu) / (2.0 * length)
+    return (
+        f"pitch {pitch_hz:.4g} Hz is below what this string's stiffness alone gives "
+        f"(about {floor_hz:.4g} Hz): make it longer or thinner, or raise the pitch"
+    )
+
+
+def string_modes(spec, *, excitation_position, pickup_position, n_modes):
+    """Modes of a stiff string.
+
+    Parameters
+    ----------
+    spec : StringSpec
+    excitation_position : float in [0, 1]
+        Fraction of the length.
+    pickup_position : float in [0, 1] or None
+        Fraction of the length; None weights every mode by 1.
+    n_modes : int >= 1
+        How many modes to compute.
+
+    Returns
+    -------
+    ModeSet
+        With columns harmonic, overtone, wavelength_m, phase_velocity_m_s,
+        n_nodes, n_antinodes, node_positions; parameters tension_n, stress,
+        inharmonicity and the stress as a percentage of tensile strength.
+    """
+    mu = linear_density(spec.density, spec.diameter)
+    if spec.tension is None:
+        tension = solve_tension(
+            spec.pitch_hz,
+            length=spec.length,
+            diameter=spec.diameter,
+            density=spec.density,
+            youngs_modulus=spec.youngs_modulus,
+            ends=spec.ends,
+        )
+    else:
+        tension = spec.tension
+    b = inharmonicity(spec.youngs_modulus, spec.diameter, tension, spec.length)
+    n = np.arange(1, n_modes + 1)
+    freq = stiff_string_frequencies(n, length=spec.length, tension=tension, mu=mu, b=b, ends=spec.ends)
+    excitation = np.sin(n * math.pi * excitation_position)
+    pickup = np.ones(n_modes) if pickup_position is None else np.sin(n * math.pi * pickup_position)
+    wavelength = 2.0 * spec.length / n
+    columns = {
+        "harmonic": tuple(int(k) for k in n),
+        "overtone": tuple(int(k) - 1 for k in n),
+        "wavelength_m": tuple(float(w) for w in wavelength),
+        "phase_velocity_m_s": tuple(float(v) for v in freq * wavelength),
+        "n_nodes": tuple(int(k) + 1 for k in n),
+        "n_antinodes": tuple(int(k) for k in n),
+        "node_positions": tuple(tuple(float(j / k) for j in range(k + 1)) for k in n),
+    }
+    area = math.pi * spec.diameter**2 / 4.0
+    stress = tension / area
+    strength = spec.tensile_strength
+    parameters = {
+        "material": spec.material,
+        "length_m": spec.length,
+        "diameter_m": spec.diameter,
+        "ends": spec.ends,
+        "tension_n": tension,
+        "tension_solved": spec.tension is None,
+        "linear_density_kg_m": mu,
+        "wave_speed_m_s": math.sqrt(tension / mu),
+        "ideal_fundamental_hz": math.sqrt(tension / mu) / (2.0 * spec.length),
+        "inharmonicity_b": b,
+        "stress_pa": stress,
+        "tensile_strength_pa": strength,
+        "stress_percent_of_strength": None if not strength else 100.0 * stress / strength,
+    }
+    warnings = []
+    if strength:
+        fraction = stress / strength
+        if fraction >= 1.0:
+            warnings.append(
+                f"string stress {stress / 1e6:.0f} MPa is {100 * fraction:.0f}% of the tensile strength "
+                f"({strength / 1e6:.0f} MPa): this string would break; this is a preview, "
+                "defer to the string maker's data"
+            )
+        elif fraction > SAFE_STRESS_FRACTION:
+            warnings.append(
+                f"string stress {stress / 1e6:.0f} MPa is {100 * fraction:.0f}% of the tensile strength "
+                f"({strength / 1e6:.0f} MPa), above the {100 * SAFE_STRESS_FRACTION:.0f}% working ceiling "
+                "(common practice): risk of breaking; this is a preview, defer to the string maker's data"
+            )
+    return ModeSet(
+        resonator="string",
+        frequency_hz=frozen_array(freq),
+        labels=tuple(f"n={k}" for k in n),
+        excitation_shape=frozen_array(excitation),
+        pickup_shape=frozen_array(pickup),
+        columns=columns,
+        parameters=parameters,
+        warnings=tuple(warnings),
+    )

@@ -1,0 +1,191 @@
+"""String physics held against published laws and check values.
+
+Every reference below is computed in this file from the published formula
+(never by calling the module under test for the expected value), and each
+check names its source.  Values marked [C] in ../shared/REFERENCES.md were
+computed independently with numpy/scipy and are quoted as literals here.
+"""
+from __future__ import annotations
+
+import math
+
+import numpy as np
+import pytest
+
+from synth.materials import MATERIALS
+from synth.resonators.string import (
+    SAFE_STRESS_FRACTION,
+    StringSpec,
+    UnreachablePitch,
+    solve_tension,
+    string_modes,
+)
+from synth.units import midi_to_hz, note_to_midi, parse_pitch
+
+# The worked example used throughout: steel, rho=7850, d=0.43 mm, L=0.65 m, T=70 N.
+RHO, D, L, T, E = 7850.0, 0.43e-3, 0.65, 70.0, 200e9
+
+
+def _spec(**changes):
+    values = dict(length=L, diameter=D, density=RHO, youngs_modulus=E, tension=T)
+    values.update(changes)
+    return StringSpec(**values)
+
+
+def _modes(spec, n=10, x0=0.2, xp=None):
+    return string_modes(spec, excitation_position=x0, pickup_position=xp, n_modes=n)
+
+
+def fletcher_reference(n, *, rho, d, length, tension, youngs, clamped=False):
+    """Independent re-implementation of Fletcher (1964), JASA 36(1):203-209."""
+    mu = rho * math.pi * d * d / 4
+    f0 = math.sqrt(tension / mu) / (2 * length)
+    b = math.pi**3 * youngs * d**4 / (64 * tension * length**2)
+    f = [k * f0 * math.sqrt(1 + b * k * k) for k in n]
+    if clamped:
+        f = [x * (1 + 2 * math.sqrt(b) / math.pi + 4 * b / math.pi**2) for x in f]
+    return np.array(f), b
+
+
+class TestMersenneTaylor:
+    """Ideal string: f_n = (n / 2L) sqrt(T / mu) (Mersenne's laws, 1636; Taylor, 1713)."""
+
+    def test_worked_example(self):
+        # [C] REFERENCES.md sec. 1: mu = 1.139978e-3 kg/m, f1 = 190.6152 Hz.
+        table = _modes(_spec(youngs_modulus=0.0))
+        assert table.parameters["linear_density_kg_m"] == pytest.approx(1.139978e-3, rel=1e-6)
+        assert table.frequency_hz[0] == pytest.approx(190.6152, abs=1e-4)
+
+    def test_scaling_laws(self):
+        # Mersenne: f ~ 1/L, f ~ sqrt(T), f ~ 1/sqrt(mu) (~ 1/d at fixed density).
+        base = _modes(_spec(youngs_modulus=0.0)).frequency_hz[0]
+        assert _modes(_spec(youngs_modulus=0.0, length=2 * L)).frequency_hz[0] == pytest.approx(base / 2, rel=1e-12)
+        assert _modes(_spec(youngs_modulus=0.0, tension=4 * T)).frequency_hz[0] == pytest.approx(2 * base, rel=1e-12)
+        assert _modes(_spec(youngs_modulus=0.0, diameter=2 * D)).frequency_hz[0] == pytest.approx(base / 2, rel=1e-12)
+
+    def test_harmonic_series(self):
+        # Common practice: an ideal string's harmonic n sits at n times the fundamental.
+        f = _modes(_spec(youngs_modulus=0.0), n=40).frequency_hz
+        np.testing.assert_allclose(f, f[0] * np.arange(1, 41), rtol=1e-12)
+
+    def test_wave_speed_is_frequency_times_wavelength(self):
+        # Common practice: v = f lambda, lambda_n = 2L/n, v = sqrt(T/mu) for an ideal string.
+        modes = _modes(_spec(youngs_modulus=0.0), n=12)
+        mu = RHO * math.pi * D**2 / 4
+        wavelength = np.array(modes.columns["wavelength_m"])
+        np.testing.assert_allclose(wavelength, 2 * L / np.arange(1, 13), rtol=1e-12)
+        np.testing.assert_allclose(modes.frequency_hz * wavelength, math.sqrt(T / mu), rtol=1e-12)
+
+    def test_nodes_and_antinodes(self):
+        # Common practice: mode n has n+1 nodes counting the ends and n antinodes;
+        # harmonic n is overtone n-1.
+        modes = _modes(_spec(), n=9)
+        for i, n in enumerate(range(1, 10)):
+            assert modes.columns["n_nodes"][i] == n + 1
+            assert modes.columns["n_antinodes"][i] == n
+            assert modes.columns["harmonic"][i] == n
+            assert modes.columns["overtone"][i] == n - 1
+            positions = np.array(modes.columns["node_positions"][i])
+            assert len(positions) == n + 1
+            np.testing.assert_allclose(np.sin(n * math.pi * positions), 0.0, atol=1e-12)
+
+
+class TestFletcherStiffString:
+    """Fletcher (1964): f_n = n f0 sqrt(1 + B n^2), B = pi^3 E d^4 / (64 T L^2)."""
+
+    def test_published_check_values(self):
+        # [C] REFERENCES.md sec. 2 (E = 200 GPa): B = 1.12008e-4, f1 = 190.6258,
+        # f2 = 381.3157, f5 = 954.4093, f10 = 1916.797 Hz.
+        modes = _modes(_spec(), n=10)
+        assert modes.parameters["inharmonicity_b"] == pytest.approx(1.12008e-4, rel=1e-5)
+        f = modes.frequency_hz
+        assert f[0] == pytest.approx(190.6258, abs=1e-4)
+        assert f[1] == pytest.approx(381.3157, abs=1e-4)
+        assert f[4] == pytest.approx(954.4093, abs=1e-4)
+        assert f[9] == pytest.approx(1916.797, abs=1e-3)
+        # f10 is 9.64 cents sharp of 10 f1 of the ideal string (same source).
+        assert 1200 * math.log2(f[9] / (10 * 190.6152)) == pytest.approx(9.64, abs=0.01)
+
+    def test_clamped_ends(self):
+        # [C] REFERENCES.md sec. 2: Fletcher's clamped factor 1.006783 -> f1 = 191.9188, f10 = 1929.799.
+        f = _modes(_spec(ends="clamped"), n=10).frequency_hz
+        assert f[0] == pytest.approx(191.9188, abs=1e-4)
+        assert f[9] == pytest.approx(1929.799, abs=1e-3)
+
+    @pytest.mark.parametrize("ends", ["pinned", "clamped"])
+    def test_independent_reimplementation(self, ends):
+        for d, tension in [(0.3e-3, 40.0), (1.0e-3, 300.0), (1.6e-3, 260.0)]:
+            spec = _spec(diameter=d, tension=tension, ends=ends)
+            expected, b = fletcher_reference(
+                range(1, 61), rho=RHO, d=d, length=L, tension=tension, youngs=E, clamped=ends == "clamped"
+            )
+            got = _modes(spec, n=60)
+            np.testing.assert_allclose(got.frequency_hz, expected, rtol=1e-12)
+            assert got.parameters["inharmonicity_b"] == pytest.approx(b, rel=1e-12)
+
+    def test_partials_run_sharp(self):
+        # Schuck & Young 1943 (JASA 15:1-11): stiff-string partials are sharp, growing ~ n^2.
+        f = _modes(_spec(diameter=1.2e-3, tension=300.0), n=20).frequency_hz
+        cents = 1200 * np.log2(f / (np.arange(1, 21) * f[0]))
+        assert np.all(np.diff(cents) > 0)
+
+
+class TestPitchSolve:
+    """`pitch` solves the tension so the lowest partial is exactly in tune."""
+
+    @pytest.mark.parametrize("ends", ["pinned", "clamped"])
+    @pytest.mark.parametrize("note", ["A1", "A2", "C4", "A4"])
+    def test_lowest_partial_on_pitch(self, ends, note):
+        pitch = parse_pitch(note)
+        modes = _modes(_spec(tension=None, pitch_hz=pitch, ends=ends, length=0.9, diameter=0.8e-3))
+        # One cent is rtol 5.8e-4; the solve is held far tighter.
+        assert modes.frequency_hz[0] == pytest.approx(pitch, rel=1e-10)
+
+    def test_pinned_closed_form(self):
+        # f1^2 = (T + K) / (4 L^2 mu), K = pi^3 E d^4 / (64 L^2), from Fletcher's formula with n = 1.
+        mu = RHO * math.pi * D**2 / 4
+        k = math.pi**3 * E * D**4 / (64 * L**2)
+        expected = 4 * L**2 * mu * 110.0**2 - k
+        got = solve_tension(110.0, length=L, diameter=D, density=RHO, youngs_modulus=E)
+        assert got == pytest.approx(expected, rel=1e-12)
+
+    def test_unreachable_pitch(self):
+        # A short, thick steel rod: stiffness alone sounds above 20 Hz.
+        with pytest.raises(UnreachablePitch, match="stiffness alone"):
+            solve_tension(20.0, length=0.05, diameter=5e-3, density=RHO, youngs_modulus=E)
+
+    def test_stress_report(self):
+        # REFERENCES.md sec. 1: stress = 482 MPa, about 19% of the ASTM A228 minimum.
+        wire = MATERIALS["music-wire"]
+        spec = _spec(tensile_strength=wire.strength_at(D))
+        params = _modes(spec).parameters
+        assert params["stress_pa"] / 1e6 == pytest.approx(482.0, abs=0.5)
+        assert 18.0 < params["stress_percent_of_strength"] < 21.0
+
+    def test_warns_near_breaking(self):
+        wire = MATERIALS["music-wire"]
+        strength = wire.strength_at(D)
+        area = math.pi * D**2 / 4
+        near = _modes(_spec(tension=0.8 * strength * area, tensile_strength=strength))
+        assert any("working ceiling" in w for w in near.warnings)
+        broken = _modes(_spec(tension=1.1 * strength * area, tensile_strength=strength))
+        assert any("would break" in w for w in broken.warnings)
+        safe = _modes(_spec(tension=0.5 * strength * area, tensile_strength=strength))
+        assert safe.warnings == ()
+        assert SAFE_STRESS_FRACTION == 0.60
+
+
+class TestPitchStandard:
+    """ISO 16:1975 (A4 = 440 Hz) and MIDI 1.0 note numbering (69 = A4)."""
+
+    def test_a4(self):
+        assert parse_pitch("A4") == pytest.approx(440.0, rel=1e-15)
+        assert note_to_midi("A4") == 69
+        assert midi_to_hz(69) == pytest.approx(440.0, rel=1e-15)
+
+    def test_equal_temperament(self):
+        # [C] REFERENCES.md sec. 9: 60 -> 261.6256, 21 -> 27.5, 108 -> 4186.0090 Hz.
+        assert midi_to_hz(60) == pytest.approx(261.6256, abs=1e-4)
+        assert midi_to_hz(21) == pytest.approx(27.5, abs=1e-12)
+        assert midi_to_hz(108) == pytest.approx(4186.0090, abs=1e-4)
+        assert note_to_midi("C4") == 60 and note_to_midi("Bb1") == 34 and note_to_midi("C#3") == 49
