@@ -136,6 +136,9 @@ class atomic_output:
 
     def __exit__(self, kind, value, traceback):
         if kind is None:
+            umask = os.umask(0)
+            os.umask(umask)
+            os.chmod(self.tmp, 0o666 & ~umask)  # mkstemp makes 0600; give the usual mode
             os.replace(self.tmp, self.path)
         else:
             try:

@@ -68,10 +68,11 @@ def cmd_render(args):
         out = Path(args.output)
     else:
         out = DEFAULT_OUTPUT_DIR / f"{patch.name}.wav"
-        out.parent.mkdir(parents=True, exist_ok=True)
-    check_output_path(out, patch.render.bit_depth)
+    if args.output:
+        check_output_path(out, patch.render.bit_depth)
     signal, table = render_patch(patch)
     scaled, gain_db = normalise(signal, peak_db=patch.render.peak_db, bit_depth=patch.render.bit_depth)
+    out.parent.mkdir(parents=True, exist_ok=True)
     write_audio(out, scaled, sample_rate=patch.render.sample_rate, bit_depth=patch.render.bit_depth)
     if not args.quiet:
         print(table_to_text(table, max_rows=args.rows))

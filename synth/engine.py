@@ -39,7 +39,6 @@ chunk are a prefix of the operands and dead modes cost nothing.
 from __future__ import annotations
 
 import math
-import os
 
 import numpy as np
 
@@ -53,8 +52,6 @@ LN_1000 = math.log(1000.0)  # dimensionless: ln of the amplitude ratio of 60 dB
 DEFAULT_FLOOR = 1e-7  # dimensionless, fraction of sum|a_m| (-140 dB); total skip error bound
 MIN_ENVELOPE = 1e-20  # amplitude units (absolute); modes below are always skipped
 FACTOR_FLUSH = 1e-8  # dimensionless; power-table magnitudes below this become 0
-TABLE_FLUSH = 1e-30  # dimensionless; state-table magnitudes below this become 0
-SUB_BLOCK = 32  # samples; inner period S of the first-block outer product
 MIN_BLOCK = 32  # samples; smallest block size B
 MAX_BLOCK = 512  # samples; largest block size B
 CHUNK_BLOCKS = 256  # blocks per GEMM call (rows of U); GEMM efficiency needs >= ~256
@@ -152,27 +149,22 @@ def _flush(table: np.ndarray, level: float, rate: np.ndarray) -> np.ndarray:
     return table
 
 
-def _first_block(s: np.ndarray, block: int, sub: int = SUB_BLOCK) -> np.ndarray:
-    """The B x M matrix z_m^r, r < B, as complex64 (``P`` of the module notes).
+def _power_matrix(s: np.ndarray, count: int, step: int) -> np.ndarray:
+    """exp(j * step * s_m) for j < count, shape (count, M), complex64.
 
-    Computed as the outer product z^(jS) * z^l (r = jS + l) of two float64
-    doubling tables, each flushed below FACTOR_FLUSH, then one complex64
-    multiply.  Nonzero entries are >= FACTOR_FLUSH**2 in magnitude; the
-    flushed ones are < FACTOR_FLUSH (an error <= 1e-8 |a_m| per mode).
+    An outer product hi[q] * lo[l] (j = q L + l, L a power of two near
+    sqrt(count)) of two float64 doubling tables, each flushed below
+    FACTOR_FLUSH, then a single complex64 multiply.  Nonzero entries are
+    >= FACTOR_FLUSH**2 in magnitude; zeroed ones are < FACTOR_FLUSH.
     """
-    sub = min(sub, block)
-    hi = _flush(_powers(s, block // sub, sub), FACTOR_FLUSH, -sub * s.real)
-    lo = _flush(_powers(s, sub), FACTOR_FLUSH, -s.real)
-    hi, lo = hi.astype(np.complex64), lo.astype(np.complex64)
-    out = np.empty((block // sub, sub, s.size), np.complex64)
-    np.multiply(hi[:, None, :], lo[None, :, :], out=out)
-    return out.reshape(block, s.size)
-
-
-def _state_table(s: np.ndarray, block: int, count: int) -> np.ndarray:
-    """conj(z_m^(jB)) for j < count, complex64, shape (count, M)."""
-    table = _flush(_powers(np.conj(s), count, block), TABLE_FLUSH, -block * s.real)
-    return table.astype(np.complex64)
+    lo_len = 1 << max(0, (count - 1).bit_length() + 1) // 2
+    hi_len = -(-count // lo_len)
+    rate = -step * s.real  # decay per row, nepers
+    lo = _flush(_powers(s, lo_len, step), FACTOR_FLUSH, rate).astype(np.complex64)
+    hi = _flush(_powers(s, hi_len, step * lo_len), FACTOR_FLUSH, lo_len * rate)
+    out = np.empty((hi_len, lo_len, s.size), np.complex64)
+    np.multiply(hi.astype(np.complex64)[:, None, :], lo[None, :, :], out=out)
+    return out.reshape(hi_len * lo_len, s.size)[:count]
 
 
 def _chunk_states(s, coef, table, start, kc, block, death, live):
@@ -221,41 +213,40 @@ def _choose_block(n_samples: int) -> int:
     return b
 
 
+def _render_chunk(out, start, stop, ops, accumulate):
+    """Render samples [start, stop) of one mode group into ``out``."""
+    s, coef, death, table, p_t, block = ops
+    live = int(np.searchsorted(-death, -start, side="left"))  # death > start
+    if live == 0:
+        return
+    kc = -(-(stop - start) // block)
+    u = _chunk_states(s, coef, table, start, kc, block, death, live)
+    lhs = p_t[: 2 * live]  # (2 live, B) view, F-ordered: BLAS reads it in place
+    full = (stop - start) // block
+    if full:
+        dst = out[start : start + full * block].reshape(full, block)
+        if accumulate:
+            dst += u[:full] @ lhs
+        else:
+            np.matmul(u[:full], lhs, out=dst)
+    rest = stop - start - full * block
+    if rest:
+        tail = u[full] @ lhs[:, :rest]
+        if accumulate:
+            out[stop - rest : stop] += tail
+        else:
+            out[stop - rest : stop] = tail
+
+
 def _render_group(out, s, coef, death, block, chunk, accumulate):
-    """Render (or add) the modes of one group into ``out`` (float32, 1-D)."""
+    """Render (or add) one group of modes, sorted by death, into ``out``."""
     n = out.size
-    first = _first_block(s, block)
-    p_t = first.view(np.float32).T  # (2M, B), F-ordered: no copy in matmul
-    table = _state_table(s, block, min(chunk, -(-n // block)))
-    neg_death = -death
-    scratch = None
-    for start in range(0, n, chunk * block):
-        stop = min(start + chunk * block, n)
-        live = int(np.searchsorted(neg_death, -start, side="left"))  # death > start
-        if live == 0:
-            if not accumulate:
-                out[start:stop] = 0.0
-            continue
-        kc = -(-(stop - start) // block)
-        u = _chunk_states(s, coef, table, start, kc, block, death, live)
-        lhs = p_t[: 2 * live]
-        full = (stop - start) // block
-        if full:
-            dst = out[start : start + full * block].reshape(full, block)
-            if accumulate:
-                if scratch is None or scratch.shape[0] < full:
-                    scratch = np.empty((full, block), np.float32)
-                np.matmul(u[:full], lhs, out=scratch[:full])
-                dst += scratch[:full]
-            else:
-                np.matmul(u[:full], lhs, out=dst)
-        rest = stop - start - full * block
-        if rest:
-            tail = u[full] @ lhs[:, :rest]
-            if accumulate:
-                out[stop - rest : stop] += tail
-            else:
-                out[stop - rest : stop] = tail
+    span = chunk * block
+    first = _power_matrix(s, block, 1)  # z^r, r < B
+    table = _power_matrix(np.conj(s), min(chunk, -(-n // block)), block)  # conj z^(jB)
+    ops = (s, coef, death, table, first.view(np.float32).T, block)
+    for start in range(0, n, span):
+        _render_chunk(out, start, min(start + span, n), ops, accumulate)
 
 
 def render_modes(
@@ -342,10 +333,11 @@ def render_modes(
     if not (math.isfinite(floor) and floor >= 0):
         raise ValueError("floor must be finite and >= 0 (fraction of sum|amplitude|)")
     block = _choose_block(n) if block_size is None else int(block_size)
-    if block < 1 or (block > SUB_BLOCK and block % SUB_BLOCK):
-        raise ValueError(f"block_size must be a positive multiple of {SUB_BLOCK}")
+    if block < 1:
+        raise ValueError("block_size must be a positive number of samples")
     if chunk_blocks < 1:
         raise ValueError("chunk_blocks must be >= 1")
+
     out = np.zeros(n, np.float32)
     if n == 0 or f.size == 0:
         return out
@@ -357,5 +349,5 @@ def render_modes(
         idx = order[g : g + GROUP_MODES]
         s = -sigma[idx] + 1j * omega[idx]
         coef = 1j * a[idx] * np.exp(-1j * ph[idx])  # i conj(a e^{i phi})
-        _render_group(out, s, coef, death[idx], block, chunk_blocks, accumulate=g > 0)
+        _render_group(out, s, coef, death[idx], block, chunk_blocks, g > 0)
     return out

@@ -6,15 +6,15 @@ the dotted key and what is allowed.  YAML is read with the safe loader only.
 from __future__ import annotations
 
 import copy
+import difflib
 import math
 from dataclasses import dataclass, field, replace
 
 from .errors import PatchError
 from .excitation import EXCITATIONS
 from .materials import MATERIALS, Material
-from .resonators import RESONATOR_TYPES, retune_spec
-from .resonators.string import StringSpec
-from .schema import Field, Section, check_keys, read_section
+from .resonators import RESONATOR_TYPES, SpecError, UnreachablePitch, resonator_module, retune_spec
+from .schema import Field, Section, check_keys, convert, read_section
 from .yamlio import LineDict, load_yaml_file, load_yaml_text
 
 __all__ = [
@@ -119,16 +119,6 @@ _MATERIAL_FIELDS = {
     "tensile_strength": Field("pressure", positive=True, nullable=True),
 }
 
-_STRING_FIELDS = {
-    "type": Field("choice", required=True, choices=RESONATOR_TYPES),
-    "material": Field("any", required=True),
-    "length": Field("length", required=True, positive=True),
-    "diameter": Field("length", required=True, positive=True),
-    "pitch": Field("pitch", positive=True),
-    "tension": Field("force", positive=True),
-    "ends": Field("choice", default="pinned", choices=("pinned", "clamped")),
-}
-
 _POSITION_1D = Field("number", low=0.0, high=1.0)
 
 _EXCITATION_FIELDS = {
@@ -159,8 +149,6 @@ def material_from(section, key="material"):
     value = section.mapping.get(key)
     if isinstance(value, str):
         if value not in MATERIALS:
-            import difflib
-
             close = difflib.get_close_matches(value, list(MATERIALS), n=1)
             hint = f"; did you mean {close[0]!r}?" if close else ""
             raise section.error(key, f"unknown material {value!r}{hint} (known: {', '.join(sorted(MATERIALS))}; or give a mapping of density, youngs_modulus, poisson_ratio, tensile_strength)")
@@ -171,41 +159,67 @@ def material_from(section, key="material"):
     raise section.error(key, f"must be a material name ({', '.join(sorted(MATERIALS))}) or a mapping of constants")
 
 
-def _build_string(section):
-    values = read_section(section, _STRING_FIELDS, context=" for a string")
-    if (values["pitch"] is None) == (values["tension"] is None):
-        raise section.error("pitch" if values["pitch"] is not None else None, "give exactly one of 'pitch' (the tension is solved) or 'tension'")
-    material = material_from(section)
-    return StringSpec(
-        length=values["length"],
-        diameter=values["diameter"],
-        density=material.density,
-        youngs_modulus=material.youngs_modulus,
-        tension=values["tension"],
-        pitch_hz=values["pitch"],
-        ends=values["ends"],
-        tensile_strength=material.strength_at(values["diameter"]),
-        material=material.name,
-    )
-
-
-#: Resonator type -> (builder from a Section, position style)
-_BUILDERS = {"string": (_build_string, "fraction")}
-
-
 def _position(section, key, style, default):
-    """Read a position of the given style (fraction / xy / polar)."""
+    """Read a position of the given style (see resonators.common)."""
     if key not in section.mapping:
         return default
     value = section.mapping[key]
-    if style == "fraction":
-        try:
-            from .schema import convert
-
+    try:
+        if style == "fraction":
             return Point("fraction", (convert(_POSITION_1D, value),))
-        except ValueError as error:
-            raise section.error(key, f"{error} (a fraction of the length, 0..1)") from None
-    raise section.error(key, f"positions of style {style!r} are not supported")  # pragma: no cover
+        if style == "xy":
+            if not isinstance(value, list) or len(value) != 2:
+                raise ValueError(f"must be [x, y], two fractions of the width and height (0..1), got {value!r}")
+            return Point("xy", tuple(convert(_POSITION_1D, v) for v in value))
+        if style == "polar":
+            if not isinstance(value, dict):
+                raise ValueError(f"must be {{radius: fraction 0..1, angle: degrees}}, got {value!r}")
+            polar = Section(value, file=section.file, path=section.key(key))
+            values = read_section(polar, _POLAR_FIELDS)
+            return Point("polar", (values["radius"], values["angle"]))
+        raise ValueError("this resonator takes no positions; leave the key out")
+    except ValueError as error:
+        if isinstance(error, PatchError):
+            raise
+        hint = " (a fraction of the length, 0..1)" if style == "fraction" else ""
+        raise section.error(key, f"{error}{hint}") from None
+
+
+_POLAR_FIELDS = {
+    "radius": Field("number", required=True, low=0.0, high=1.0),
+    "angle": Field("angle", default=0.0),
+}
+
+_DEFAULT_POSITIONS = {
+    "fraction": Point("fraction", (0.2,)),
+    "xy": Point("xy", (0.31, 0.37)),
+    "polar": Point("polar", (0.33, 0.0)),
+    "none": None,
+}
+
+
+def _build_resonator(resonator):
+    """The resonator spec of a `resonator:` section."""
+    kind = resonator.mapping.get("type")
+    if kind is None:
+        error = resonator.missing("type")
+        raise PatchError(f"{error.message} (allowed: {', '.join(RESONATOR_TYPES)})", file=error.file, line=error.line, key=error.key)
+    try:
+        convert(Field("choice", choices=RESONATOR_TYPES), kind)
+    except ValueError as error:
+        raise resonator.error("type", str(error)) from None
+    try:
+        module = resonator_module(kind)
+    except ImportError:
+        raise resonator.error("type", f"resonator type {kind!r} is not available in this version") from None
+    fields = {"type": Field("choice", required=True, choices=RESONATOR_TYPES), **module.FIELDS}
+    values = read_section(resonator, fields, context=f" for a {kind}")
+    if "material" in module.FIELDS and (values.get("material") is not None or module.FIELDS["material"].required):
+        values["material"] = material_from(resonator)
+    try:
+        return module.build_spec(values)
+    except SpecError as error:
+        raise resonator.error(error.key, str(error)) from None
 
 
 def _sections(top, file):
@@ -235,28 +249,14 @@ def patch_from_mapping(mapping, *, file="<patch>", overrides=None):
     mapping = _apply_overrides(mapping, overrides or {}, file)
     top = Section(mapping, file=file)
     top_values = read_section(top, _TOP)
-    resonator = top.child("resonator")
-    kind = resonator.mapping.get("type")
-    if kind not in _BUILDERS:
-        from .schema import convert
-
-        try:
-            convert(Field("choice", choices=tuple(_BUILDERS)), kind)
-        except ValueError as error:
-            raise resonator.error("type" if "type" in resonator.mapping else None, str(error) if kind is not None else f"missing required key 'resonator.type' (allowed: {', '.join(_BUILDERS)})") from None
-    builder, style = _BUILDERS[kind]
-    try:
-        spec = builder(resonator)
-    except ValueError as error:
-        if isinstance(error, PatchError):
-            raise
-        raise resonator.error(None, str(error)) from None
+    spec = _build_resonator(top.child("resonator"))
+    style = resonator_module(spec.TYPE).position_style(spec)
     sections = _sections(top, file)
     exc = sections["excitation"]
     exc_values = read_section(exc, _EXCITATION_FIELDS)
     excitation = Excitation(
         kind=exc_values["type"],
-        position=_position(exc, "position", style, Point("fraction", (0.2,))),
+        position=_position(exc, "position", style, _DEFAULT_POSITIONS[style]),
         contact_time=exc_values["contact_time"],
         strength=exc_values["strength"],
     )
@@ -301,8 +301,6 @@ def _apply_overrides(mapping, overrides, file):
             section.lines[key] = None
         try:
             if dotted.startswith("render.") and key in _RENDER_FIELDS:
-                from .schema import convert
-
                 convert(_RENDER_FIELDS[key], value)
         except ValueError as error:
             raise PatchError(str(error), file="command line", key=option) from None
@@ -323,7 +321,7 @@ def _collect_lines(mapping, prefix=""):
 
 def estimate_render_bytes(duration, sample_rate, n_modes):
     """Rough working memory (bytes) of a render: samples and modes."""
-    return round(duration * sample_rate) * BYTES_PER_SAMPLE + n_modes * BYTES_PER_MODE
+    return float(duration) * float(sample_rate) * BYTES_PER_SAMPLE + n_modes * BYTES_PER_MODE
 
 
 def _check_size(patch, render_section):
@@ -368,7 +366,15 @@ def retune(patch, pitch_hz):
     """A copy of `patch` whose lowest mode sounds at `pitch_hz`.
 
     Moves the parameter a maker would move (tension for a string).
+
+    Raises
+    ------
+    PatchError
+        If the object cannot reach `pitch_hz` (names ``resonator.pitch``).
     """
     if not (math.isfinite(pitch_hz) and pitch_hz > 0):
         raise ValueError(f"pitch_hz={pitch_hz!r} must be > 0")
-    return replace(patch, resonator=retune_spec(patch.resonator, pitch_hz))
+    try:
+        return replace(patch, resonator=retune_spec(patch.resonator, pitch_hz))
+    except UnreachablePitch as error:
+        raise patch.error("resonator.pitch", str(error)) from None

@@ -14,7 +14,7 @@ from .errors import PatchError
 from .excitation import excitation_weights
 from .modes import NODE_TOLERANCE, PartialTable, frozen_array
 from .resonators import resonator_modes, resonator_name
-from .resonators.string import UnreachablePitch
+from .resonators import UnreachablePitch
 
 __all__ = ["mode_set", "partial_table", "render_patch"]
 
@@ -24,7 +24,7 @@ def _coordinate(point):
         return None
     if point.style == "fraction":
         return point.values[0]
-    return point
+    return point.values
 
 
 def mode_set(patch):

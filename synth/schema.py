@@ -65,11 +65,24 @@ class Section:
     def error(self, key, message):
         return PatchError(message, file=self.file, line=self.line(key), key=self.key(key) if key is not None else self.path or None)
 
+    def missing(self, key):
+        """The error for a required `key` that is absent (line of the section)."""
+        return PatchError(
+            f"missing required key{_allowed_hint(key)}",
+            file=self.file,
+            line=self.line(),
+            key=self.key(key),
+        )
+
     def child(self, key):
         value = self.mapping.get(key)
         if not isinstance(value, dict):
             raise self.error(key, f"must be a mapping of keys, got {_describe(value)}")
         return Section(value, file=self.file, path=self.key(key))
+
+
+def _allowed_hint(key):
+    return ""
 
 
 def _describe(value):
@@ -158,7 +171,7 @@ def read_section(section, fields, *, context=""):
     for key, field in fields.items():
         if key not in section.mapping:
             if field.required:
-                raise section.error(None, f"missing required key {section.key(key)!r}")
+                raise section.missing(key)
             values[key] = field.default
             continue
         try:

@@ -1,37 +1,55 @@
 """Resonator models: one module per physical object, each a pure function
-spec -> :class:`synth.modes.ModeSet`.
+spec -> :class:`synth.modes.ModeSet` (the contract is in :mod:`.common`).
 
-:func:`resonator_modes` dispatches on the spec's type; :func:`retune_spec`
-moves the parameter a maker would move to put the lowest mode on a pitch.
+Modules are imported when a patch names their type.
 """
 from __future__ import annotations
 
-from dataclasses import replace
+import importlib
 
-from .string import StringSpec, string_modes
+from .common import SpecError, UnreachablePitch
 
-__all__ = ["RESONATOR_TYPES", "StringSpec", "string_modes", "resonator_modes", "retune_spec", "resonator_name"]
+__all__ = [
+    "RESONATOR_TYPES",
+    "resonator_module",
+    "resonator_modes",
+    "retune_spec",
+    "resonator_name",
+    "SpecError",
+    "UnreachablePitch",
+]
+
+#: Patch type name -> module name in this package.
+_MODULES = {
+    "string": "string",
+    "membrane": "membrane",
+    "bar": "bar",
+    "plate": "plate",
+    "air-column": "air_column",
+    "partials": "partials",
+}
 
 #: Every resonator type a patch may name.
-RESONATOR_TYPES = ("string", "membrane", "bar", "plate", "air-column", "partials")
+RESONATOR_TYPES = tuple(_MODULES)
 
-_MODES = {StringSpec: ("string", string_modes)}
+
+def resonator_module(kind):
+    """The module implementing resonator type `kind` (ImportError if not built yet)."""
+    return importlib.import_module(f".{_MODULES[kind]}", __name__)
 
 
 def resonator_name(spec):
     """The patch type name of a spec, e.g. ``"string"``."""
-    return _MODES[type(spec)][0]
+    return spec.TYPE
 
 
 def resonator_modes(spec, *, excitation_position, pickup_position, n_modes):
-    """The ModeSet of any resonator spec (positions as tuples of coordinates)."""
-    return _MODES[type(spec)][1](
+    """The ModeSet of any resonator spec."""
+    return resonator_module(spec.TYPE).modes(
         spec, excitation_position=excitation_position, pickup_position=pickup_position, n_modes=n_modes
     )
 
 
 def retune_spec(spec, pitch_hz):
     """A copy of `spec` tuned so its lowest mode sounds at `pitch_hz`."""
-    if isinstance(spec, StringSpec):
-        return replace(spec, tension=None, pitch_hz=pitch_hz)
-    raise TypeError(f"cannot retune {type(spec).__name__}")
+    return resonator_module(spec.TYPE).retune(spec, pitch_hz)

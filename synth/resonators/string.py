@@ -19,15 +19,23 @@ References
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
+from typing import ClassVar
 
 import numpy as np
 from scipy.optimize import brentq
 
 from ..modes import ModeSet, frozen_array
+from ..schema import Field
+from .common import SpecError, UnreachablePitch
 
 __all__ = [
+    "FIELDS",
     "StringSpec",
+    "build_spec",
+    "position_style",
+    "modes",
+    "retune",
     "string_modes",
     "linear_density",
     "inharmonicity",
@@ -44,8 +52,15 @@ __all__ = [
 SAFE_STRESS_FRACTION = 0.60
 
 
-class UnreachablePitch(ValueError):
-    """The requested pitch cannot be reached by any positive tension."""
+#: Patch keys of a string (besides ``type``).
+FIELDS = {
+    "material": Field("any", required=True),
+    "length": Field("length", required=True, positive=True),
+    "diameter": Field("length", required=True, positive=True),
+    "pitch": Field("pitch", positive=True),
+    "tension": Field("force", positive=True),
+    "ends": Field("choice", default="pinned", choices=("pinned", "clamped")),
+}
 
 
 @dataclass(frozen=True)
@@ -77,6 +92,40 @@ class StringSpec:
     ends: str = "pinned"
     tensile_strength: float | None = None
     material: str = "custom"
+
+    TYPE: ClassVar[str] = "string"
+
+
+def build_spec(values):
+    """A :class:`StringSpec` from checked patch values (``material`` is a Material)."""
+    if (values["pitch"] is None) == (values["tension"] is None):
+        raise SpecError("give exactly one of 'pitch' (the tension is solved) or 'tension'", key="pitch" if values["pitch"] is not None else None)
+    material = values["material"]
+    return StringSpec(
+        length=values["length"],
+        diameter=values["diameter"],
+        density=material.density,
+        youngs_modulus=material.youngs_modulus,
+        tension=values["tension"],
+        pitch_hz=values["pitch"],
+        ends=values["ends"],
+        tensile_strength=material.strength_at(values["diameter"]),
+        material=material.name,
+    )
+
+
+def position_style(spec):
+    """Positions on a string are fractions of its length."""
+    return "fraction"
+
+
+def retune(spec, pitch_hz):
+    """The string re-tensioned so its lowest partial sounds at `pitch_hz`."""
+    retuned = replace(spec, tension=None, pitch_hz=pitch_hz)
+    solve_tension(pitch_hz, length=spec.length, diameter=spec.diameter, density=spec.density, youngs_modulus=spec.youngs_modulus, ends=spec.ends)
+    return retuned
+
+
 
 
 def linear_density(density, diameter):
@@ -247,3 +296,6 @@ def string_modes(spec, *, excitation_position, pickup_position, n_modes):
         parameters=parameters,
         warnings=tuple(warnings),
     )
+
+
+modes = string_modes
