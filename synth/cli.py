@@ -87,19 +87,26 @@ def cmd_render(args):
     return 0
 
 
+class _Parser(argparse.ArgumentParser):
+    """argparse with one-line errors (exit status 2), like every other synth error."""
+
+    def error(self, message):
+        self.exit(2, f"synth: error: {message} (see '{self.prog} --help')\n")
+
+
 def build_parser():
-    parser = argparse.ArgumentParser(
+    parser = _Parser(
         prog="synth",
         description="Modal synthesis from physics: compute, report and render the partials of a vibrating object.",
     )
     parser.add_argument("--version", action="version", version=f"synth {__version__}")
-    commands = parser.add_subparsers(dest="command", required=True, metavar="COMMAND")
+    commands = parser.add_subparsers(dest="command", required=True, metavar="COMMAND", parser_class=_Parser)
 
     def patch_options(p):
         p.add_argument("patch", help="patch file (YAML)")
         p.add_argument("--pitch", help="override the pitch (note name such as A2, or '110 Hz'); retunes the object")
         p.add_argument("--sample-rate", dest="sample_rate", help="override render.sample_rate (Hz)")
-        p.add_argument("--max-modes", dest="max_modes", type=int, help="override render.max_modes")
+        p.add_argument("--max-modes", dest="max_modes", help="override render.max_modes")
 
     modes = commands.add_parser("modes", help="print the partial table of a patch")
     patch_options(modes)
@@ -112,7 +119,7 @@ def build_parser():
     patch_options(render)
     render.add_argument("-o", "--output", help="output file (.wav or .flac); default renders/<name>.wav")
     render.add_argument("--duration", help="override render.duration (e.g. 2.5 or '800 ms')")
-    render.add_argument("--bit-depth", dest="bit_depth", type=int, help="override render.bit_depth (16, 24, 32)")
+    render.add_argument("--bit-depth", dest="bit_depth", help="override render.bit_depth (16, 24, 32)")
     render.add_argument("--rows", type=int, default=10, help="partial-table rows to print (default 10)")
     render.add_argument("-q", "--quiet", action="store_true", help="print only where the file went")
     render.set_defaults(func=cmd_render)
@@ -132,7 +139,7 @@ def _number_or_text(value):
 def main(argv=None):
     parser = build_parser()
     args = parser.parse_args(argv)
-    for attr in ("duration", "sample_rate"):
+    for attr in ("duration", "sample_rate", "max_modes", "bit_depth"):
         if hasattr(args, attr):
             setattr(args, attr, _number_or_text(getattr(args, attr)))
     try:

@@ -57,7 +57,7 @@ MAX_BLOCK = 512  # samples; largest block size B
 CHUNK_BLOCKS = 256  # blocks per GEMM call (rows of U); GEMM efficiency needs >= ~256
 GROUP_MODES = 2048  # modes per pass; bounds memory in the number of modes
 
-_FLT_MIN = float(np.finfo(np.float32).tiny)  # amplitude units; smallest normal float32
+MAX_DECAY = 800.0  # nepers per sample; exp(-800) is 0 in float64, so faster decays are clamped
 
 
 def _as_1d(name: str, value) -> np.ndarray:
@@ -88,8 +88,8 @@ def _validate(frequency_hz, t60_s, amplitude, duration, sample_rate, phase):
         raise ValueError("frequency_hz must be finite and >= 0 Hz")
     if not np.all((t60 > 0) & ~np.isnan(t60)):
         raise ValueError("t60_s must be > 0 s (np.inf allowed: no decay)")
-    if not np.all(np.isfinite(a)):
-        raise ValueError("amplitude must be finite")
+    if not (np.all(np.isfinite(a)) and math.isfinite(float(np.abs(a).sum()))):
+        raise ValueError("amplitude must be finite (and sum|amplitude| finite)")
     if not np.all(np.isfinite(ph)):
         raise ValueError("phase must be finite (radians)")
     try:
@@ -109,7 +109,7 @@ def _exponents(frequency_hz, t60_s, sample_rate):
 
     sigma_m = ln(1000) / (T60_m fs) [1/sample], omega_m = 2 pi f_m / fs [rad/sample].
     """
-    sigma = LN_1000 / (t60_s * sample_rate)  # T60 = inf gives 0
+    sigma = np.minimum(LN_1000 / (t60_s * sample_rate), MAX_DECAY)  # T60 = inf gives 0
     omega = (2.0 * np.pi / sample_rate) * frequency_hz
     return sigma, omega
 
@@ -157,7 +157,7 @@ def _power_matrix(s: np.ndarray, count: int, step: int) -> np.ndarray:
     FACTOR_FLUSH, then a single complex64 multiply.  Nonzero entries are
     >= FACTOR_FLUSH**2 in magnitude; zeroed ones are < FACTOR_FLUSH.
     """
-    lo_len = 1 << max(0, (count - 1).bit_length() + 1) // 2
+    lo_len = 1 << (((count - 1).bit_length() + 1) // 2)
     hi_len = -(-count // lo_len)
     rate = -step * s.real  # decay per row, nepers
     lo = _flush(_powers(s, lo_len, step), FACTOR_FLUSH, rate).astype(np.complex64)
@@ -175,7 +175,7 @@ def _chunk_states(s, coef, table, start, kc, block, death, live):
     the per-render ``table``.  Entries of blocks starting at or after a mode's
     death sample are set to 0.  Returns a (kc, 2 live) float32 array.
     """
-    v = coef[:live] * np.exp(start * np.conj(s[:live]))
+    v = coef[:live] * np.exp(start * np.conj(s[:live])) if start else coef[:live]
     u = np.multiply(table[:kc, :live], v.astype(np.complex64))
     # Modes dying inside this chunk are the tail of the sorted prefix.
     end = start + kc * block
@@ -188,20 +188,21 @@ def _chunk_states(s, coef, table, start, kc, block, death, live):
 
 
 def _death_samples(abs_amp, sigma, floor):
-    """Sample index after which each mode's envelope |a| e^(-sigma n) < threshold.
+    """Sample time (float) at which each mode's envelope |a| e^(-sigma n) hits a threshold.
 
-    threshold = max(floor * sum|a| / M, MIN_ENVELOPE), so the modes skipped at
-    any instant sum to less than floor * sum|a| (or M * MIN_ENVELOPE).
-    Modes with sigma = 0 (T60 = inf) above threshold never die (+inf); modes
-    starting at or below it are dead from sample 0 (-1).
+    threshold = max(floor * sum|a| / M, MIN_ENVELOPE).  A mode is computed in
+    a block only if the block starts before its death, so at any sample the
+    skipped modes sum to less than M * threshold = floor * sum|a| (or
+    M * MIN_ENVELOPE).  Modes with T60 = inf (sigma = 0) and a != 0 never die
+    (+inf); decaying modes starting at or below the threshold, and modes with
+    a = 0, are dead from the start (-1).
     """
     m = abs_amp.size
     thr = max(floor * float(abs_amp.sum()) / m, MIN_ENVELOPE) if m else MIN_ENVELOPE
     death = np.full(m, -1.0)
-    alive = abs_amp > thr
-    decays = alive & (sigma > 0)
+    decays = (abs_amp > thr) & (sigma > 0)
     death[decays] = np.log(abs_amp[decays] / thr) / sigma[decays]
-    death[alive & (sigma == 0)] = np.inf
+    death[(abs_amp > 0) & (sigma == 0)] = np.inf
     return death
 
 

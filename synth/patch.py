@@ -279,7 +279,7 @@ def patch_from_mapping(mapping, *, file="<patch>", overrides=None):
         source=file,
         lines=lines,
     )
-    _check_size(patch, sections["render"])
+    _check_size(patch, overrides or {})
     return patch
 
 
@@ -302,6 +302,8 @@ def _apply_overrides(mapping, overrides, file):
         try:
             if dotted.startswith("render.") and key in _RENDER_FIELDS:
                 convert(_RENDER_FIELDS[key], value)
+            elif dotted == "resonator.pitch":
+                convert(Field("pitch", positive=True), value)
         except ValueError as error:
             raise PatchError(str(error), file="command line", key=option) from None
     return mapping
@@ -324,15 +326,21 @@ def estimate_render_bytes(duration, sample_rate, n_modes):
     return float(duration) * float(sample_rate) * BYTES_PER_SAMPLE + n_modes * BYTES_PER_MODE
 
 
-def _check_size(patch, render_section):
+def _check_size(patch, overrides):
     need = estimate_render_bytes(patch.render.duration, patch.render.sample_rate, patch.render.max_modes)
     if need > MEMORY_LIMIT_BYTES:
+        for key in ("render.duration", "render.sample_rate", "render.max_modes"):
+            if key in overrides:
+                file, line, name = "command line", None, overrides[key][1]
+                break
+        else:
+            file, line, name = patch.source, patch.lines.get("render.duration"), "render.duration"
         raise PatchError(
             f"this render would need about {need / 2**30:.1f} GiB of memory, more than a workstation has "
             f"(limit {MEMORY_LIMIT_BYTES / 2**30:.0f} GiB): shorten render.duration or lower render.sample_rate",
-            file=patch.source,
-            line=patch.lines.get("render.duration"),
-            key="render.duration",
+            file=file,
+            line=line,
+            key=name,
         )
 
 

@@ -47,16 +47,19 @@ class Field:
 class Section:
     """A mapping from a YAML file with the path of keys that leads to it."""
 
-    def __init__(self, mapping, *, file, path=""):
+    def __init__(self, mapping, *, file, path="", header_line=None):
         self.mapping = mapping
         self.file = file
         self.path = path
+        self.header_line = header_line
 
     def line(self, key=None):
-        """Line of `key` (or of the section itself) where known."""
+        """Line of `key` (or of the section's own header) where known."""
         lines = getattr(self.mapping, "lines", {})
         if key is not None and key in lines:
             return lines[key]
+        if self.header_line is not None:
+            return self.header_line
         return getattr(self.mapping, "line", None)
 
     def key(self, key):
@@ -78,7 +81,7 @@ class Section:
         value = self.mapping.get(key)
         if not isinstance(value, dict):
             raise self.error(key, f"must be a mapping of keys, got {_describe(value)}")
-        return Section(value, file=self.file, path=self.key(key))
+        return Section(value, file=self.file, path=self.key(key), header_line=self.line(key))
 
 
 def _allowed_hint(key):
@@ -125,6 +128,8 @@ def convert(field, value):
             )
         return value
     if kind == "choice":
+        if isinstance(value, str) and value.strip().isdigit() and int(value) in field.choices:
+            value = int(value)
         if value not in field.choices:
             close = difflib.get_close_matches(str(value), [str(c) for c in field.choices], n=1)
             hint = f"; did you mean {close[0]!r}?" if close else ""
@@ -143,7 +148,7 @@ def convert(field, value):
     else:  # pragma: no cover - a programming error
         raise TypeError(f"unknown field kind {kind!r}")
     if not math.isfinite(number):
-        raise ValueError(f"must be a finite number, got {value!r}")
+        raise ValueError(f"must be a finite number{_range_hint(field)}, got {value!r}")
     if field.positive and number <= 0:
         raise ValueError(f"must be > 0, got {value!r}")
     if field.low is not None and number < field.low:
@@ -151,6 +156,21 @@ def convert(field, value):
     if field.high is not None and number > field.high:
         raise ValueError(f"must be <= {field.high:g}{_si(kind)}, got {value!r}")
     return number
+
+
+def _range_hint(field):
+    parts = []
+    if field.positive:
+        parts.append("> 0")
+    if field.low is not None:
+        parts.append(f">= {field.low:g}")
+    if field.high is not None:
+        parts.append(f"<= {field.high:g}")
+    unit = ""
+    units = UNITS.get(field.kind)
+    if units:
+        unit = f"; units {', '.join(units)}"
+    return f" ({', '.join(parts)}{unit})" if parts or unit else ""
 
 
 def _si(kind):

@@ -58,6 +58,8 @@ def load_yaml_text(text, *, file="<text>"):
         mark = getattr(error, "problem_mark", None) or getattr(error, "context_mark", None)
         line = mark.line + 1 if mark is not None else None
         problem = getattr(error, "problem", None) or str(error).splitlines()[0]
+        if problem.startswith("duplicate key"):
+            raise InputFileError(f"{problem}: each key may appear only once in a section", file=file, line=line) from None
         raise InputFileError(f"YAML syntax error: {problem}", file=file, line=line) from None
 
 
