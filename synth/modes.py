@@ -227,6 +227,11 @@ EXTRA_TEXT_COLUMNS = {
     "n_nodes": ("nodes", "{:d}"),
     "n_antinodes": ("antinodes", "{:d}"),
     "node_positions": ("node positions (fraction of length)", None),
+    "orientation": ("orient", "{}"),
+    "nodal_diameters": ("diam", "{}"),
+    "nodal_circles": ("circles", "{}"),
+    "nodal_lines_x": ("lines x", "{}"),
+    "nodal_lines_y": ("lines y", "{}"),
     "nodal_lines": ("nodal lines", "{}"),
 }
 
@@ -282,6 +287,8 @@ def table_to_text(table, *, max_rows=None):
 #: Parameter-name suffix -> (unit shown, scale applied) for the text report.
 _PARAMETER_UNITS = (
     ("_percent_of_strength", "%", 1.0),
+    ("_n_per_m", "N/m", 1.0),
+    ("_kg_m2", "kg/m^2", 1.0),
     ("_kg_m", "kg/m", 1.0),
     ("_m_s", "m/s", 1.0),
     ("_pa", "MPa", 1e-6),

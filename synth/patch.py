@@ -294,7 +294,11 @@ def _apply_overrides(mapping, overrides, file):
             section = LineDict()
             mapping[section_name] = section
         if key == "pitch" and section_name == "resonator":
-            for other in ("tension",):
+            try:
+                replaced = getattr(resonator_module(section.get("type")), "PITCH_REPLACES", ("tension",))
+            except (ImportError, KeyError):
+                replaced = ()
+            for other in replaced:
                 section.pop(other, None)
         section[key] = value
         if hasattr(section, "lines"):

@@ -79,6 +79,11 @@ def partial_table(patch, *, modes=None):
         strength=patch.excitation.strength,
         contact_time=patch.excitation.contact_time,
     )
+    if "level_override_db" in kept.columns:
+        # Levels given per mode (a measured partial set) replace the excitation's
+        # weighting; the amplitudes sum to `strength`, as a pluck's do at its point.
+        weight = 10.0 ** (np.asarray(kept.columns["level_override_db"], dtype=float) / 20.0)
+        amplitude = patch.excitation.strength * weight / np.sum(weight)
     damping = patch.damping
     if damping.t60_high is not None and damping.high_frequency <= fundamental:
         raise patch.error(
@@ -92,6 +97,10 @@ def partial_table(patch, *, modes=None):
         t60_high=damping.t60_high,
         high_frequency=damping.high_frequency,
     )
+    if "t60_s" in kept.columns:
+        # Decay times given per mode (None: the damping section's) replace the two-point T60.
+        given = np.array([np.nan if v is None else v for v in kept.columns["t60_s"]], dtype=float)
+        t60 = np.where(np.isfinite(given), given, t60)
     scale = np.abs(kept.excitation_shape * kept.pickup_shape)
     null = scale <= NODE_TOLERANCE * max(float(np.max(scale)), 1e-300)
     amplitude = np.where(null, 0.0, amplitude)
@@ -113,7 +122,7 @@ def partial_table(patch, *, modes=None):
         t60_s=frozen_array(t60),
         level_db=frozen_array(level_db),
         labels=kept.labels,
-        columns=kept.columns,
+        columns={k: v for k, v in kept.columns.items() if k != "t60_s"},
         parameters=kept.parameters,
         warnings=tuple(warnings),
     )

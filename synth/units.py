@@ -47,6 +47,9 @@ UNITS = {
     "number": {},
 }
 
+#: Kinds whose bare numbers are not in the SI unit: patch angles are degrees.
+BARE_UNITS = {"angle": "deg"}
+
 _QUANTITY = re.compile(r"^\s*([-+]?(?:\d+\.?\d*|\.\d+)(?:[eE][-+]?\d+)?)\s*([^\s\d].*?)?\s*$")
 _NOTE = re.compile(r"^\s*([A-Ga-g])([#b♯♭]?)(-?\d+)\s*$")
 _PITCH_CLASS = {"C": 0, "D": 2, "E": 4, "F": 5, "G": 7, "A": 9, "B": 11}
@@ -59,7 +62,8 @@ def parse_quantity(value, kind):
     Parameters
     ----------
     value : float, int or str
-        A number (already SI) or a string "number unit", e.g. ``"650 mm"``.
+        A number (SI, except the kinds in :data:`BARE_UNITS`: a bare angle is in
+        degrees) or a string "number unit", e.g. ``"650 mm"``.
     kind : str
         A key of :data:`UNITS`, e.g. ``"length"``.
 
@@ -84,7 +88,7 @@ def parse_quantity(value, kind):
     if isinstance(value, bool):
         raise ValueError(f"expected a number{_unit_hint(kind)}, got {value!r}")
     if isinstance(value, (int, float)):
-        return float(value)
+        return float(value) * units.get(BARE_UNITS.get(kind), 1.0)
     if not isinstance(value, str):
         raise ValueError(f"expected a number{_unit_hint(kind)}, got {value!r}")
     match = _QUANTITY.match(value)
@@ -94,7 +98,7 @@ def parse_quantity(value, kind):
         raise ValueError(f"cannot read {value!r} as a number{_unit_hint(kind)}")
     number, unit = match.groups()
     if not unit:
-        return float(number)
+        return float(number) * units.get(BARE_UNITS.get(kind), 1.0)
     if unit not in units:
         raise ValueError(f"unit {unit!r} is not allowed here{_unit_hint(kind)}")
     return float(number) * units[unit]

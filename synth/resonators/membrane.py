@@ -1,0 +1,427 @@
+"""Transverse modes of an ideal stretched membrane: circle or rectangle.
+
+Notes
+-----
+An ideal membrane under uniform tension per length ``T`` (N/m) with areal
+density ``sigma`` (kg/m^2) carries waves at ``c = sqrt(T / sigma)``.  With a
+fixed rim:
+
+* circle of radius ``a``: ``f_mn = j_mn c / (2 pi a)``, where ``j_mn`` is the
+  n-th positive zero of the Bessel function ``J_m``; shapes
+  ``J_m(j_mn r / a) cos(m theta)`` and ``J_m(j_mn r / a) sin(m theta)``.
+  Mode (m, n) has m nodal diameters and n - 1 nodal circles inside the rim.
+* rectangle ``Lx x Ly``: ``f_mn = (c / 2) sqrt((m / Lx)**2 + (n / Ly)**2)``,
+  shapes ``sin(m pi x / Lx) sin(n pi y / Ly)``, with m - 1 and n - 1 interior
+  nodal lines.
+
+Shapes are scaled to a mean square of 1 over the area (a common modal mass):
+``J_m(j r/a) / |J_1(j)|`` for m = 0, ``sqrt(2) J_m(j r/a) cos(m theta) /
+|J_(m+1)(j)|`` for m > 0 (from ``int_0^1 J_m(j x)**2 x dx = J_(m+1)(j)**2 / 2``),
+and ``2 sin sin`` for the rectangle.
+
+The two orientations of a circular (m > 0) pair share one frequency, so any
+rotation of the pair is an equally valid modal basis.  The basis is turned to
+the excitation point (its angle is ``theta = 0``): the "cos" member then
+carries everything the excitation puts into the pair, and its level is what
+the pickup hears; the "sin" member has a nodal diameter through the excitation
+point and is listed with level null.  Without a pickup (every mode weighted 1)
+the silent partner tells nothing, so each pair is merged into one row
+(orientation "pair").  Where the excitation sits at the centre the basis is
+turned to the pickup instead (every m > 0 mode is then silent anyway).
+
+References
+----------
+.. [1] M. Abramowitz and I. A. Stegun, *Handbook of Mathematical Functions*,
+   NBS (1964), table 9.5 (zeros of J_m).
+.. [2] N. H. Fletcher and T. D. Rossing, *The Physics of Musical Instruments*,
+   2nd ed., Springer (1998), sec. 3.2-3.5 (rectangular and circular membranes).
+"""
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass, replace
+from typing import ClassVar
+
+import numpy as np
+from scipy.special import jn_zeros, jv
+
+from ..modes import ModeSet, frozen_array
+from ..schema import Field
+from .common import SpecError, UnreachablePitch
+
+__all__ = [
+    "FIELDS",
+    "MembraneSpec",
+    "build_spec",
+    "position_style",
+    "modes",
+    "retune",
+    "membrane_modes",
+    "wave_speed",
+    "solve_tension",
+    "circle_zeros",
+    "circle_mode_shape",
+    "rectangle_mode_shape",
+    "SHAPES",
+    "PITCH_REPLACES",
+]
+
+#: Membrane outlines a patch may name.
+SHAPES = ("circle", "rectangle")
+
+#: Keys a command-line ``--pitch`` replaces (for the patch loader).
+PITCH_REPLACES = ("tension",)
+
+#: Patch keys of a membrane (besides ``type``).
+FIELDS = {
+    "shape": Field("choice", default="circle", choices=SHAPES),
+    "radius": Field("length", positive=True),
+    "width": Field("length", positive=True),
+    "height": Field("length", positive=True),
+    "tension": Field("force_per_length", positive=True),
+    "pitch": Field("pitch", positive=True),
+    "areal_density": Field("areal_density", positive=True),
+    "material": Field("any"),
+    "thickness": Field("length", positive=True),
+}
+
+#: Growth factor of the search bound while collecting enough modes.
+_GROW = 1.25
+
+
+@dataclass(frozen=True)
+class MembraneSpec:
+    """A membrane in SI units.
+
+    Attributes
+    ----------
+    shape : {"circle", "rectangle"}
+    radius : float > 0 or None, m
+        Circle only.
+    width, height : float > 0 or None, m
+        Rectangle only; positions ``[x, y]`` are fractions of these.
+    areal_density : float > 0, kg/m^2
+    tension : float > 0 or None, N/m
+        Give `tension` or `pitch_hz`, not both.
+    pitch_hz : float > 0 or None, Hz
+        Pitch of the lowest mode; the tension is solved for it.
+    material : str
+        Name for the report ("custom" when `areal_density` was given).
+    thickness : float or None, m
+        Where the areal density came from material density x thickness.
+    """
+
+    shape: str
+    areal_density: float
+    radius: float | None = None
+    width: float | None = None
+    height: float | None = None
+    tension: float | None = None
+    pitch_hz: float | None = None
+    material: str = "custom"
+    thickness: float | None = None
+
+    TYPE: ClassVar[str] = "membrane"
+
+
+def build_spec(values):
+    """A :class:`MembraneSpec` from checked patch values (``material`` is a Material)."""
+    shape = values["shape"]
+    _check_outline(shape, values)
+    if (values["pitch"] is None) == (values["tension"] is None):
+        raise SpecError(
+            "give exactly one of 'pitch' (the tension is solved) or 'tension' (N/m)",
+            key="pitch" if values["pitch"] is not None else None,
+        )
+    areal_density, material, thickness = _areal_density(values)
+    return MembraneSpec(
+        shape=shape,
+        areal_density=areal_density,
+        radius=values["radius"],
+        width=values["width"],
+        height=values["height"],
+        tension=values["tension"],
+        pitch_hz=values["pitch"],
+        material=material,
+        thickness=thickness,
+    )
+
+
+def _check_outline(shape, values):
+    if shape == "circle":
+        for key in ("width", "height"):
+            if values[key] is not None:
+                raise SpecError(f"a circle takes radius, not {key} (or set shape: rectangle)", key=key)
+        if values["radius"] is None:
+            raise SpecError("a circle needs radius", key="radius")
+        return
+    if values["radius"] is not None:
+        raise SpecError("a rectangle takes width and height, not radius (or set shape: circle)", key="radius")
+    for key in ("width", "height"):
+        if values[key] is None:
+            raise SpecError("a rectangle needs both width and height", key=key)
+
+
+def _areal_density(values):
+    """(areal density kg/m^2, material name, thickness m) from the patch values."""
+    material, thickness, sigma = values["material"], values["thickness"], values["areal_density"]
+    if sigma is not None:
+        if material is not None:
+            raise SpecError("give areal_density (kg/m^2) or material + thickness, not both", key="areal_density")
+        if thickness is not None:
+            raise SpecError("thickness goes with material; with areal_density leave it out", key="thickness")
+        return sigma, "custom", None
+    if material is None and thickness is None:
+        raise SpecError("give areal_density (kg/m^2), or material + thickness")
+    if thickness is None:
+        raise SpecError("material needs thickness (areal density = density x thickness)", key="thickness")
+    if material is None:
+        raise SpecError("thickness needs a material (or give areal_density instead)", key="thickness")
+    return material.density * thickness, material.name, thickness
+
+
+def position_style(spec):
+    """Circle: ``{radius: fraction, angle: degrees}``; rectangle: ``[x, y]`` fractions."""
+    return "polar" if spec.shape == "circle" else "xy"
+
+
+def retune(spec, pitch_hz):
+    """The membrane re-tensioned so its lowest mode sounds at `pitch_hz`."""
+    if not (math.isfinite(pitch_hz) and pitch_hz > 0):
+        raise UnreachablePitch(f"pitch {pitch_hz!r} Hz must be a positive frequency")
+    return replace(spec, tension=None, pitch_hz=pitch_hz)
+
+
+def wave_speed(tension, areal_density):
+    """Transverse wave speed (m/s) on a membrane: sqrt(T / sigma)."""
+    return math.sqrt(tension / areal_density)
+
+
+def circle_zeros(m, count):
+    """The first `count` positive zeros of the Bessel function J_m."""
+    return jn_zeros(int(m), int(count))
+
+
+def _lowest_eigenvalue(spec):
+    """k (rad/m) of the lowest mode: f_lowest = k c / (2 pi)."""
+    if spec.shape == "circle":
+        return circle_zeros(0, 1)[0] / spec.radius
+    return math.pi * math.hypot(1.0 / spec.width, 1.0 / spec.height)
+
+
+def solve_tension(spec, pitch_hz):
+    """Tension per length (N/m) that puts the lowest mode at `pitch_hz`.
+
+    ``T = sigma (2 pi f / k_1)**2``, with ``k_1 = j_01 / a`` (circle) or
+    ``pi sqrt(1/Lx**2 + 1/Ly**2)`` (rectangle).
+    """
+    speed = 2.0 * math.pi * pitch_hz / _lowest_eigenvalue(spec)
+    return spec.areal_density * speed**2
+
+
+def circle_mode_shape(m, n, radius_fraction, angle, *, orientation="cos"):
+    """Mass-normalised shape of circular mode (m, n) at points on the membrane.
+
+    Parameters
+    ----------
+    m : int >= 0
+        Nodal diameters.
+    n : int >= 1
+        Nodal circles + 1 (the rim counted).
+    radius_fraction : array_like in [0, 1]
+    angle : array_like, rad
+        From the basis direction (``theta = 0``).
+    orientation : {"cos", "sin"}
+
+    Returns
+    -------
+    ndarray
+        Mean square over the disc is 1.
+    """
+    j = circle_zeros(m, n)[-1]
+    return _circle_shape(m, j, np.asarray(radius_fraction, dtype=float), np.asarray(angle, dtype=float), orientation)
+
+
+def _circle_shape(m, j, r, angle, orientation):
+    radial = np.where(r >= 1.0, 0.0, jv(m, j * r) / abs(jv(m + 1, j)))  # the rim: an exact node
+    if m == 0:
+        return radial
+    turn = np.cos(m * angle) if orientation == "cos" else np.sin(m * angle)
+    return math.sqrt(2.0) * radial * turn
+
+
+def rectangle_mode_shape(m, n, x, y):
+    """Mass-normalised shape ``2 sin(m pi x) sin(n pi y)`` at fractions (x, y)."""
+    return 2.0 * _edge_sine(m, x) * _edge_sine(n, y)
+
+
+def _edge_sine(k, fraction):
+    """sin(k pi fraction), exactly 0 on the edges (fraction 0 or 1)."""
+    fraction = np.asarray(fraction, dtype=float)
+    return np.where((fraction <= 0.0) | (fraction >= 1.0), 0.0, np.sin(k * math.pi * fraction))
+
+
+def _circle_table(n_rows, split):
+    """The lowest circular modes: (sorted (j, m, n) entries, {m: zeros of J_m}).
+
+    At least `n_rows` rows, a pair (m > 0) counting as two rows when `split`.
+    """
+    # Weyl's law for a fixed-rim disc: about x**2 / 4 - x / 2 modes with j < x.
+    bound = 2.0 * math.sqrt(n_rows) + 4.0
+    while True:
+        zeros = {}
+        m = 0
+        while True:
+            below = _zeros_below(m, bound)
+            if below.size == 0:
+                break
+            zeros[m] = below
+            m += 1
+        rows = sum(z.size * (1 if m == 0 or not split else 2) for m, z in zeros.items())
+        if rows >= n_rows:
+            entries = sorted((float(j), m, k + 1) for m, z in zeros.items() for k, j in enumerate(z))
+            return entries, zeros
+        bound *= _GROW
+
+
+def _zeros_below(m, bound):
+    """Zeros of J_m below `bound` (the count from the uniform asymptotic phase)."""
+    if bound <= m:
+        return np.empty(0)
+    # Number of zeros below x is about (sqrt(x^2 - m^2) - m arccos(m / x)) / pi + 1/4.
+    count = int((math.sqrt(bound**2 - m**2) - m * math.acos(m / bound)) / math.pi + 0.25) + 2
+    zeros = jn_zeros(m, count)
+    while zeros[-1] < bound:
+        count *= 2
+        zeros = jn_zeros(m, count)
+    return zeros[zeros < bound]
+
+
+def _frame_angle(excitation, pickup):
+    """Basis direction (rad): the excitation's angle, or the pickup's if it is central."""
+    if excitation[0] > 0.0:
+        return excitation[1]
+    if pickup is not None and pickup[0] > 0.0:
+        return pickup[1]
+    return 0.0
+
+
+def _circle_modes(spec, speed, excitation, pickup, n_modes):
+    split = pickup is not None
+    frame = _frame_angle(excitation, pickup)
+    entries, zeros = _circle_table(n_modes, split)
+    rows = []
+    for j, m, n in entries:
+        orientations = ("",) if m == 0 else (("cos", "sin") if split else ("pair",))
+        rows.extend((j, m, n, o) for o in orientations)
+    rows = rows[:n_modes]
+    j = np.array([r[0] for r in rows])
+    m = np.array([r[1] for r in rows])
+    n = np.array([r[2] for r in rows])
+    sine = np.array([r[3] == "sin" for r in rows])
+    freq = j * speed / (2.0 * math.pi * spec.radius)
+    exc = _circle_shapes(m, j, sine, excitation[0], excitation[1] - frame)
+    pick = np.ones(len(rows)) if pickup is None else _circle_shapes(m, j, sine, pickup[0], pickup[1] - frame)
+    columns = {
+        "nodal_diameters": tuple(int(k) for k in m),
+        "nodal_circles": tuple(int(k) - 1 for k in n),
+        "nodal_lines": tuple(int(a + b) - 1 for a, b in zip(m, n)),
+        "orientation": tuple(r[3] for r in rows),
+        "nodal_circle_radii": tuple(tuple(float(z / r[0]) for z in zeros[r[1]][: r[2] - 1]) for r in rows),
+    }
+    labels = tuple(f"({r[1]},{r[2]})" for r in rows)
+    parameters = {"radius_m": spec.radius, "orientation_reference_deg": math.degrees(frame)}
+    return freq, exc, pick, labels, columns, parameters
+
+
+def _circle_shapes(m, j, sine, radius_fraction, angle):
+    """Mass-normalised shapes of many circular modes at one point (vectorised)."""
+    if radius_fraction >= 1.0:
+        return np.zeros(m.shape)  # the rim: an exact node of every mode
+    radial = jv(m, j * radius_fraction) / np.abs(jv(m + 1, j))
+    turn = np.where(sine, np.sin(m * angle), np.cos(m * angle))
+    return np.where(m == 0, radial, math.sqrt(2.0) * radial * turn)
+
+
+def _rectangle_table(n_rows, width, height):
+    """Sorted (k, m, n) of the lowest rectangular modes, k = sqrt((m/Lx)^2 + (n/Ly)^2)."""
+    bound = math.sqrt(4.0 * n_rows / (math.pi * width * height)) + 2.0 / min(width, height)
+    while True:
+        m = np.arange(1, int(bound * width) + 2)
+        n = np.arange(1, int(bound * height) + 2)
+        mm, nn = np.meshgrid(m, n, indexing="ij")
+        k = np.hypot(mm / width, nn / height)
+        inside = k < bound
+        if np.count_nonzero(inside) >= n_rows:
+            entries = sorted(zip(k[inside].tolist(), mm[inside].tolist(), nn[inside].tolist()))
+            return entries[:n_rows]
+        bound *= _GROW
+
+
+def _rectangle_modes(spec, speed, excitation, pickup, n_modes):
+    rows = _rectangle_table(n_modes, spec.width, spec.height)
+    freq = [0.5 * speed * k for k, _, _ in rows]
+    exc = [float(rectangle_mode_shape(m, n, *excitation)) for _, m, n in rows]
+    pick = [1.0 if pickup is None else float(rectangle_mode_shape(m, n, *pickup)) for _, m, n in rows]
+    columns = {
+        "nodal_lines_x": tuple(m - 1 for _, m, _ in rows),
+        "nodal_lines_y": tuple(n - 1 for _, _, n in rows),
+        "nodal_lines": tuple(m + n - 2 for _, m, n in rows),
+    }
+    labels = tuple(f"({m},{n})" for _, m, n in rows)
+    parameters = {"width_m": spec.width, "height_m": spec.height}
+    return freq, exc, pick, labels, columns, parameters
+
+
+def membrane_modes(spec, *, excitation_position, pickup_position, n_modes):
+    """Modes of a circular or rectangular membrane with a fixed rim.
+
+    Parameters
+    ----------
+    spec : MembraneSpec
+    excitation_position : tuple
+        ``(radius fraction, angle rad)`` for a circle, ``(x, y)`` fractions of
+        width and height for a rectangle.
+    pickup_position : tuple or None
+        As `excitation_position`; None weights every mode 1 (and merges the
+        orientations of circular pairs).
+    n_modes : int >= 1
+
+    Returns
+    -------
+    ModeSet
+        Labels ``"(m,n)"``.  Circle columns: nodal_diameters (m),
+        nodal_circles (n - 1, rim not counted), nodal_lines (m + n - 1),
+        orientation ("", "cos", "sin" or "pair") and nodal_circle_radii.
+        Rectangle columns: nodal_lines_x (m - 1), nodal_lines_y (n - 1),
+        nodal_lines (m + n - 2).  Parameters include the tension (solved where
+        a pitch was given) and the wave speed.
+    """
+    tension = solve_tension(spec, spec.pitch_hz) if spec.tension is None else spec.tension
+    speed = wave_speed(tension, spec.areal_density)
+    build = _circle_modes if spec.shape == "circle" else _rectangle_modes
+    freq, exc, pick, labels, columns, geometry = build(spec, speed, excitation_position, pickup_position, n_modes)
+    parameters = {
+        "shape": spec.shape,
+        **geometry,
+        "material": spec.material,
+        "thickness_m": spec.thickness,
+        "areal_density_kg_m2": spec.areal_density,
+        "tension_n_per_m": tension,
+        "tension_solved": spec.tension is None,
+        "wave_speed_m_s": speed,
+    }
+    if spec.thickness is None:
+        del parameters["thickness_m"]
+    return ModeSet(
+        resonator="membrane",
+        frequency_hz=frozen_array(freq),
+        labels=labels,
+        excitation_shape=frozen_array(exc),
+        pickup_shape=frozen_array(pick),
+        columns=columns,
+        parameters=parameters,
+    )
+
+
+modes = membrane_modes

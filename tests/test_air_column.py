@@ -1,0 +1,309 @@
+"""Air columns held against Levine & Schwinger, the speed of sound, the audio and bad input.
+
+Reference values are quoted from ../shared/REFERENCES.md sec. 6 ([C]: computed
+there with numpy) or recomputed here from the published formulas; the module
+under test never supplies an expected value.
+"""
+from __future__ import annotations
+
+import json
+import math
+import re
+
+import numpy as np
+import pytest
+from scipy.special import jnp_zeros
+
+from synth import patch_from_text, retune
+from synth.cli import main
+from synth.pipeline import partial_table
+from synth.resonators.air_column import (
+    CROSS_MODE_KA,
+    AirColumnSpec,
+    UnreachablePitch,
+    air_column_modes,
+    solve_length,
+    speed_of_sound,
+)
+
+from .analysis import measured_t60, peak_near, read_wav
+
+# Levine & Schwinger (1948), Phys. Rev. 73(4):383: unflanged end correction 0.6133 a.
+LEVINE_SCHWINGER = 0.6133
+# Ideal gas: gamma = 1.4 for air, R = 287.05 J/(kg K) (REFERENCES.md sec. 6).
+GAMMA, R_AIR = 1.4, 287.05
+
+
+def _modes(length=0.5, radius=0.01, ends="open-open", temperature=20.0, n=12, x0=0.3, xp=0.8):
+    spec = AirColumnSpec(length=length, radius=radius, ends=ends, temperature=temperature)
+    return air_column_modes(spec, excitation_position=x0, pickup_position=xp, n_modes=n)
+
+
+class TestSpeedOfSound:
+    def test_20_degrees(self):
+        # [C] REFERENCES.md sec. 6: 331.3 sqrt(1 + 20/273.15) = 343.21 m/s.
+        assert speed_of_sound(20.0) == pytest.approx(343.21, abs=0.005)
+
+    @pytest.mark.parametrize("temperature", [-30.0, 0.0, 15.0, 20.0, 37.0, 60.0])
+    def test_ideal_gas(self, temperature):
+        # c = sqrt(gamma R T_K) with gamma 1.4, R 287.05 gives 343.23 m/s at 20 degC
+        # (REFERENCES.md sec. 6): the two forms agree to 0.01% across the range.
+        expected = math.sqrt(GAMMA * R_AIR * (temperature + 273.15))
+        assert speed_of_sound(temperature) == pytest.approx(expected, rel=1e-4)
+
+    def test_pitch_rises_with_temperature(self):
+        # f ~ c ~ sqrt(T_K): a pipe at 30 degC sounds sqrt(303.15 / 283.15) higher than at 10 degC.
+        cold = _modes(temperature=10.0).frequency_hz[0]
+        warm = _modes(temperature=30.0).frequency_hz[0]
+        assert warm / cold == pytest.approx(math.sqrt(303.15 / 283.15), rel=1e-12)
+
+
+class TestLevineSchwinger:
+    def test_published_example(self):
+        # [C] REFERENCES.md sec. 6: L = 0.5, a = 0.01, c = 343.21, unflanged:
+        # open-open f1 = 334.99 Hz, closed-open f1 = 169.53 Hz.  The example takes c
+        # as exactly 343.21 m/s (20 degC gives 343.2146), so scale f ~ c to that c.
+        to_example = 343.21 / speed_of_sound(20.0)
+        assert _modes(ends="open-open").frequency_hz[0] * to_example == pytest.approx(334.99, abs=0.005)
+        assert _modes(ends="closed-open").frequency_hz[0] * to_example == pytest.approx(169.53, abs=0.005)
+
+    @pytest.mark.parametrize("ends,open_ends", [("open-open", 2), ("closed-open", 1)])
+    def test_end_correction(self, ends, open_ends):
+        modes = _modes(length=0.37, radius=0.015, ends=ends)
+        p = modes.parameters
+        assert p["end_correction_m"] == pytest.approx(LEVINE_SCHWINGER * 0.015, rel=1e-12)
+        assert p["effective_length_m"] == pytest.approx(0.37 + open_ends * LEVINE_SCHWINGER * 0.015, rel=1e-12)
+
+    def test_open_open_every_harmonic(self):
+        # f_n = n c / (2 (L + 2 delta)) (REFERENCES.md sec. 6).
+        modes = _modes(ends="open-open", n=20)
+        c = 331.3 * math.sqrt(1 + 20 / 273.15)
+        expected = np.arange(1, 21) * c / (2 * (0.5 + 2 * LEVINE_SCHWINGER * 0.01))
+        np.testing.assert_allclose(modes.frequency_hz, expected, rtol=1e-12)
+        assert modes.columns["harmonic"] == tuple(range(1, 21))
+
+    def test_closed_open_odd_harmonics(self):
+        # f_n = (2n - 1) c / (4 (L + delta)): odd harmonics only (REFERENCES.md sec. 6).
+        modes = _modes(ends="closed-open", n=15)
+        c = 331.3 * math.sqrt(1 + 20 / 273.15)
+        odd = 2 * np.arange(1, 16) - 1
+        np.testing.assert_allclose(modes.frequency_hz, odd * c / (4 * (0.5 + LEVINE_SCHWINGER * 0.01)), rtol=1e-12)
+        assert modes.columns["harmonic"] == tuple(int(h) for h in odd)
+        assert modes.labels[:3] == ("n=1", "n=2", "n=3")
+        np.testing.assert_allclose(modes.frequency_hz / modes.frequency_hz[0], odd, rtol=1e-12)
+
+
+class TestPressureShapes:
+    def test_closed_end_is_a_pressure_antinode(self):
+        # Rigid closed end: zero particle velocity, pressure maximum (Fletcher & Rossing 1998 ch. 8).
+        modes = _modes(ends="closed-open", x0=0.0, xp=0.0, n=10)
+        np.testing.assert_allclose(np.abs(modes.excitation_shape), math.sqrt(2), rtol=1e-12)
+
+    def test_open_end_is_nearly_a_node(self):
+        # The pressure node sits delta beyond the open end: p(L) = sin(n pi delta / L_e), small.
+        modes = _modes(ends="open-open", x0=1.0, xp=0.0, n=4)
+        l_eff = 0.5 + 2 * LEVINE_SCHWINGER * 0.01
+        n = np.arange(1, 5)
+        expected = math.sqrt(2) * np.abs(np.sin(n * math.pi * LEVINE_SCHWINGER * 0.01 / l_eff))
+        np.testing.assert_allclose(np.abs(modes.excitation_shape), expected, rtol=1e-9)
+        assert np.all(np.abs(modes.excitation_shape) < 0.15 * math.sqrt(2))
+
+    @pytest.mark.parametrize("ends", ["open-open", "closed-open"])
+    def test_node_positions_are_pressure_zeros(self, ends):
+        modes = _modes(ends=ends, n=8)
+        l_eff = modes.parameters["effective_length_m"]
+        delta = LEVINE_SCHWINGER * 0.01
+        for h, nodes in zip(modes.columns["harmonic"], modes.columns["node_positions"]):
+            x = np.array(nodes) * 0.5
+            if ends == "open-open":
+                p = np.sin(h * math.pi * (x + delta) / l_eff)
+                assert len(nodes) == h - 1
+            else:
+                p = np.cos(h * math.pi * x / (2 * l_eff))
+                assert len(nodes) == (h - 1) // 2
+            np.testing.assert_allclose(p, 0.0, atol=1e-12)
+
+    def test_shapes_at_points(self):
+        modes = _modes(ends="closed-open", x0=0.3, xp=0.8, n=6)
+        l_eff = 0.5 + LEVINE_SCHWINGER * 0.01
+        h = 2 * np.arange(1, 7) - 1
+        np.testing.assert_allclose(modes.excitation_shape, math.sqrt(2) * np.cos(h * math.pi * 0.15 / (2 * l_eff)), rtol=1e-12)
+        np.testing.assert_allclose(modes.pickup_shape, math.sqrt(2) * np.cos(h * math.pi * 0.4 / (2 * l_eff)), rtol=1e-12)
+
+    def test_wavelength(self):
+        modes = _modes(ends="closed-open", n=5)
+        l_eff = modes.parameters["effective_length_m"]
+        # Quarter-wave resonator: lambda_n = 4 L_e / (2n - 1) (common practice).
+        np.testing.assert_allclose(modes.columns["wavelength_m"], 4 * l_eff / (2 * np.arange(1, 6) - 1), rtol=1e-12)
+
+
+class TestCrossModeCutOn:
+    def test_constant_is_first_zero_of_j1_prime(self):
+        # The (1,0) duct mode cuts on at ka = j'_11, the first zero of J_1'.
+        assert CROSS_MODE_KA == pytest.approx(jnp_zeros(1, 1)[0], rel=1e-9)
+
+    def test_modes_above_cut_on_left_out(self):
+        modes = _modes(length=0.5, radius=0.02, n=200)
+        c = 331.3 * math.sqrt(1 + 20 / 273.15)
+        cut_on = jnp_zeros(1, 1)[0] * c / (2 * math.pi * 0.02)
+        assert modes.frequency_hz[-1] < cut_on
+        assert len(modes.frequency_hz) == int(cut_on // modes.frequency_hz[0])
+        assert any("cross-mode cut-on" in w for w in modes.warnings)
+
+
+class TestLengthSolve:
+    @pytest.mark.parametrize("ends", ["open-open", "closed-open"])
+    @pytest.mark.parametrize("pitch", [110.0, 440.0, 1760.0])
+    def test_lowest_mode_on_pitch(self, ends, pitch):
+        length = solve_length(pitch, radius=0.008, ends=ends, temperature=24.0)
+        modes = _modes(length=length, radius=0.008, ends=ends, temperature=24.0)
+        assert modes.frequency_hz[0] == pytest.approx(pitch, rel=1e-12)
+        c = math.sqrt(GAMMA * R_AIR * (24.0 + 273.15))
+        quarter = 2 if ends == "open-open" else 4
+        corrections = 2 if ends == "open-open" else 1
+        # L = c / (2f) - 2 delta, or c / (4f) - delta; c within 0.01% of the ideal gas.
+        assert length == pytest.approx(c / (quarter * pitch) - corrections * LEVINE_SCHWINGER * 0.008, rel=2e-4)
+
+    def test_unreachable(self):
+        # 2 delta = 24.5 mm already exceeds c / (2 f) = 21.5 mm at 8 kHz.
+        with pytest.raises(UnreachablePitch, match=r"end corrections alone"):
+            solve_length(8000.0, radius=0.02, ends="open-open")
+
+    def test_retune_moves_the_length(self):
+        patch = patch_from_text(PATCH.format(ends="closed-open", x0=0.2, xp=0.0))
+        base = partial_table(patch)
+        tuned = partial_table(retune(patch, 2 * base.fundamental_hz))
+        assert tuned.fundamental_hz == pytest.approx(2 * base.fundamental_hz, rel=1e-12)
+        assert tuned.parameters["radius_m"] == base.parameters["radius_m"]
+        # The effective length halves for an octave.
+        assert tuned.parameters["effective_length_m"] == pytest.approx(base.parameters["effective_length_m"] / 2, rel=1e-12)
+        assert tuned.parameters["length_solved"] is True
+
+
+# --------------------------------------------------------------------------
+# Through the patch file and the command line.
+
+PATCH = """\
+name: test-pipe
+resonator:
+  type: air-column
+  ends: {ends}
+  length: 400 mm
+  radius: 9 mm
+  temperature: 20 degC
+excitation:
+  type: strike
+  position: {x0}
+  contact_time: 0.3 ms
+pickup:
+  position: {xp}
+damping:
+  t60: 0.8 s
+  t60_high: 0.3 s
+  high_frequency: 2 kHz
+render:
+  duration: 1 s
+  sample_rate: 16000
+  bit_depth: 24
+  max_modes: 20
+"""
+
+
+def _render(write_patch, tmp_path, capsys, text):
+    patch = write_patch(text)
+    assert main(["modes", str(patch), "--json"]) == 0
+    report = json.loads(capsys.readouterr().out)
+    out = tmp_path / "pipe.wav"
+    assert main(["render", str(patch), "-o", str(out), "--quiet"]) == 0
+    signal, rate = read_wav(out)
+    return report, signal, rate
+
+
+def _magnitude(signal, rate, frequency):
+    """|DFT| of the Hann-windowed signal at `frequency` (Hz)."""
+    t = np.arange(len(signal)) / rate
+    return abs(np.sum(signal * np.hanning(len(signal)) * np.exp(-2j * math.pi * frequency * t)))
+
+
+class TestClosedLoop:
+    def test_closed_open_sounds_odd_harmonics_only(self, write_patch, tmp_path, capsys):
+        report, signal, rate = _render(write_patch, tmp_path, capsys, PATCH.format(ends="closed-open", x0=0.1, xp=0.0))
+        f1 = report["fundamental_hz"]
+        for mode in report["modes"][:6]:
+            found = peak_near(signal[: rate // 2], rate, mode["frequency_hz"], search_hz=20.0)
+            # 0.5 s Hann window, 8x padding, parabolic interpolation; harmonics 2 f1 apart.
+            assert found == pytest.approx(mode["frequency_hz"], abs=0.5), mode["label"]
+        odd = _magnitude(signal, rate, 3 * f1)
+        for even in (2, 4, 6):
+            # No mode there: only window leakage, far below the odd neighbours.
+            assert 20 * math.log10(_magnitude(signal, rate, even * f1) / odd) < -50
+        t60 = measured_t60(signal, rate, f1, start_s=0.05, stop_s=0.7)
+        # 3%: > 40 dB of clean exponential decay, neighbours 2 f1 away.
+        assert t60 == pytest.approx(report["modes"][0]["t60_s"], rel=0.03)
+
+    def test_open_open_pickup_in_the_middle(self, write_patch, tmp_path, capsys):
+        # The middle is a pressure node of every even mode: the report says null, the audio agrees.
+        text = PATCH.format(ends="open-open", x0=0.1, xp=0.5)
+        report, signal, rate = _render(write_patch, tmp_path, capsys, text)
+        f1 = report["fundamental_hz"]
+        by_harmonic = {m["harmonic"]: m for m in report["modes"]}
+        assert by_harmonic[2]["level_db"] is None and by_harmonic[3]["level_db"] is not None
+        assert 20 * math.log10(_magnitude(signal, rate, 2 * f1) / _magnitude(signal, rate, f1)) < -50
+        assert peak_near(signal[: rate // 2], rate, 3 * f1, search_hz=20.0) == pytest.approx(3 * f1, abs=0.5)
+
+
+# --------------------------------------------------------------------------
+# Bad input: one line, exit status 2, nothing written.  Line numbers refer to BAD_BASE.
+
+BAD_BASE = PATCH.format(ends="closed-open", x0=0.1, xp=0.0)
+
+
+def _edit(old, new):
+    assert BAD_BASE.count(old) == 1, old
+    return BAD_BASE.replace(old, new)
+
+
+BAD_CASES = [
+    pytest.param(_edit("  length: 400 mm", "  length: 400 mm\n  pitch: A4"), "resonator.pitch", 6,
+                 r"give exactly one of 'pitch' \(the length is solved\) or 'length'", id="length-and-pitch"),
+    pytest.param(_edit("  length: 400 mm\n", ""), "resonator", 2,
+                 r"give exactly one of 'pitch'", id="neither-length-nor-pitch"),
+    pytest.param(_edit("  length: 400 mm", "  pitch: 9 kHz").replace("9 mm", "25 mm"), "resonator.pitch", 5,
+                 r"pitch 9000 Hz is above what a closed-open pipe of radius 25 mm can sound "
+                 r"\(its end corrections alone give about \d+ Hz\): make the radius smaller or lower the pitch",
+                 id="pitch-unreachable"),
+    pytest.param(_edit("  length: 400 mm", "  length: 10 mm").replace("9 mm", "100 mm"), "resonator.radius", 6,
+                 r"too wide for its lowest mode .* first cross-mode cut-on", id="too-wide"),
+    pytest.param(_edit("  radius: 9 mm\n", ""), "resonator.radius", 2,
+                 r"missing required key", id="missing-radius"),
+    pytest.param(_edit("  ends: closed-open", "  ends: closed-closed"), "resonator.ends", 4,
+                 r"'closed-closed' is not allowed; did you mean .*\(allowed: open-open, closed-open\)", id="bad-ends"),
+    pytest.param(_edit("  temperature: 20 degC", "  temperature: 293"), "resonator.temperature", 7,
+                 r"must be <= 100 degC, got 293", id="kelvin-as-celsius"),
+    pytest.param(_edit("  temperature: 20 degC", "  temperature: 293 K"), "resonator.temperature", 7,
+                 r"unit 'K' is not allowed here \(units: degC, C\)", id="kelvin-unit"),
+    pytest.param(_edit("  radius: 9 mm", "  radius: 0"), "resonator.radius", 6,
+                 r"must be > 0", id="zero-radius"),
+    pytest.param(_edit("  position: 0.1", "  position: 1.5"), "excitation.position", 10,
+                 r"must be <= 1, got 1\.5 \(a fraction of the length, 0\.\.1\)", id="position-outside"),
+    pytest.param(_edit("  position: 0.0", "  position: [0.2, 0.3]"), "pickup.position", 13,
+                 r"expected a number.*\(a fraction of the length, 0\.\.1\)", id="position-as-list"),
+]
+
+
+@pytest.mark.parametrize("command", ["render", "modes"])
+@pytest.mark.parametrize(("text", "key", "line", "phrase"), BAD_CASES)
+def test_bad_air_column_patch(tmp_path, monkeypatch, capsys, command, text, key, line, phrase):
+    monkeypatch.chdir(tmp_path)
+    (tmp_path / "patch.yaml").write_text(text, encoding="utf-8")
+    argv = ["render", "patch.yaml", "-o", "out.wav"] if command == "render" else ["modes", "patch.yaml"]
+    status = main(argv)
+    out, err = capsys.readouterr()
+    assert status == 2
+    assert out == ""
+    assert "Traceback" not in err
+    lines = err.strip().splitlines()
+    assert len(lines) == 1, err
+    assert lines[0].startswith(f"synth: error: patch.yaml:{line}: {key}: "), lines[0]
+    assert re.search(phrase, lines[0]), lines[0]
+    assert sorted(p.name for p in tmp_path.iterdir()) == ["patch.yaml"]
