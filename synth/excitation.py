@@ -15,7 +15,9 @@ For a string (phi_n = sin(n pi x / L), omega_n proportional to n) the pluck
 gives the familiar triangle series ``sin(n pi beta) / n**2`` and the strike
 ``sin(n pi beta) / n``.  Amplitudes are scaled so that `strength` is a peak
 level in full-scale units: for the pluck it is the initial deflection at the
-pluck point (the triangle's height).
+pluck point (the triangle's height); for the strike and impulse the same
+scaling is taken without the contact roll-off, so the low modes' level is
+proportional to `strength` whatever the contact time.
 
 References
 ----------
@@ -76,19 +78,24 @@ def excitation_weights(kind, frequency_hz, excitation_shape, pickup_shape, *, st
     phi_e = np.asarray(excitation_shape, dtype=float)
     phi_p = np.asarray(pickup_shape, dtype=float)
     omega = 2.0 * math.pi * f
+    rolloff = 1.0
     if kind == "pluck":
         drive = phi_e / omega**2
         base_phase = 0.5 * math.pi
     elif kind == "strike":
-        drive = phi_e / omega * (contact_spectrum(f, contact_time) if contact_time > 0 else 1.0)
+        drive = phi_e / omega
+        if contact_time > 0:
+            rolloff = contact_spectrum(f, contact_time)
         base_phase = 0.0
     else:
         drive = phi_e.copy()
         base_phase = 0.0
     # Scale so that the response at the excitation point itself is `strength`:
-    # sum(drive * phi_e) is the deflection there (the triangle height for a pluck).
+    # sum(drive * phi_e) is the deflection there (the triangle height for a
+    # pluck).  The contact roll-off is applied after, so a longer contact takes
+    # away high modes without changing the level of the low ones.
     norm = float(np.sum(drive * phi_e))
-    signed = drive * phi_p * (strength / norm if norm > 0 else 0.0)
+    signed = drive * rolloff * phi_p * (strength / norm if norm > 0 else 0.0)
     amplitude = np.abs(signed)
     phase = np.where(signed < 0, base_phase + math.pi, base_phase)
     return amplitude, phase
