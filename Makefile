@@ -19,6 +19,7 @@ demo: $(STAMP)
 	@for patch in patches/*.yaml; do \
 		$(BIN)/synth render "$$patch" --quiet || exit 1; \
 	done
+	@$(BIN)/synth midi patches/midi/demo-song.mid --map patches/midi/demo-map.yaml -o renders/demo-song.wav --quiet
 	@echo "listening caution: start playback quietly and raise it slowly; long exposure to loud sound harms hearing"
 
 test: $(STAMP)

@@ -13,7 +13,7 @@ from . import __version__
 from .audio import atomic_output, check_output_path, normalise, peak_dbfs, write_audio
 from .errors import ModalError, PatchError
 from .modes import table_to_csv, table_to_json, table_to_text
-from .patch import load_patch
+from .patch import load_patch, patch_from_mapping
 from .pipeline import partial_table, render_patch
 
 __all__ = ["main", "LISTENING_CAUTION"]
@@ -87,6 +87,88 @@ def cmd_render(args):
     return 0
 
 
+def cmd_midi(args):
+    from .midi import render_midi
+
+    out = Path(args.output) if args.output else DEFAULT_OUTPUT_DIR / f"{Path(args.song).stem}.wav"
+    result = render_midi(
+        args.song,
+        output=out,
+        patch=args.patch,
+        map_file=args.map,
+        a4_hz=args.a4,
+        sample_rate=args.sample_rate,
+        bit_depth=args.bit_depth,
+        tail_s=args.tail,
+        progress=not args.quiet and sys.stderr.isatty(),
+        make_folder=not args.output,
+    )
+    layout = "stereo" if result.n_channels == 2 else "mono"
+    notes = f"{result.n_notes} note{'s' * (result.n_notes != 1)}"
+    print(
+        f"wrote {out} ({notes}, {result.duration_s:.2f} s, {result.sample_rate:g} Hz, "
+        f"{result.bit_depth}-bit {layout}, peak {result.peak_dbfs:.2f} dBFS)"
+    )
+    _warn(result.warnings)
+    if not args.quiet:
+        print(LISTENING_CAUTION, file=sys.stderr)
+    return 0
+
+
+def cmd_batch(args):
+    from .batch import build_library, summary_lines
+
+    result = build_library(args.spec, output=args.output, workers=args.workers, scheduler=args.scheduler, force=args.force)
+    out, err = summary_lines(result)
+    for line in out:
+        print(line)
+    for line in err:
+        print(line, file=sys.stderr)
+    if result.rendered:
+        print(LISTENING_CAUTION, file=sys.stderr)
+    return result.exit_status
+
+
+def cmd_tune_bar(args):
+    from .tuning import MAX_POINTS, MIN_POINTS, TuningError, parse_ratios, profile_text, tune_undercut, tuned_patch_text, tuning_report
+    from .yamlio import load_yaml_file
+
+    out = Path(args.output) if args.output else None
+    if out is not None:
+        if out.suffix.lower() not in (".yaml", ".yml"):
+            raise PatchError(f"output must end in .yaml or .yml, got {out.name!r}", key="--output")
+        if not out.parent.exists():
+            raise PatchError(f"output folder {str(out.parent)!r} does not exist", key="--output")
+        if out.exists() and out.resolve() == Path(args.patch).resolve():
+            raise PatchError("would overwrite the patch being tuned; name another file", key="--output")
+    if not MIN_POINTS <= args.points <= MAX_POINTS:
+        raise PatchError(f"must be {MIN_POINTS}..{MAX_POINTS}, got {args.points}", file="command line", key="--points")
+    try:
+        targets = parse_ratios(args.ratios)
+    except TuningError as error:
+        raise PatchError(str(error), file="command line", key="--ratios") from None
+    mapping = load_yaml_file(args.patch)
+    patch = patch_from_mapping(mapping, file=str(args.patch))
+    if patch.resonator.TYPE != "bar":
+        raise patch.error("resonator.type", f"tune-bar shapes bars, not a {patch.resonator.TYPE}")
+    try:
+        tuning = tune_undercut(patch.resonator, targets, n_points=args.points)
+    except TuningError as error:
+        if error.key.startswith("resonator."):
+            raise patch.error(error.key, str(error)) from None
+        raise PatchError(str(error), file="command line", key=error.key) from None
+    print(tuning_report(tuning, name=patch.name))
+    if out is None:
+        print("profile:  # paste into the patch's resonator section in place of thickness")
+        for value in profile_text(tuning.spec.profile):
+            print(f"  - {value}")
+        return 0
+    with atomic_output(out) as tmp:
+        tmp.write_text(tuned_patch_text(mapping, tuning, source=Path(args.patch).name), encoding="utf-8")
+    print(f"wrote {out}")
+    return 0
+
+
 class _Parser(argparse.ArgumentParser):
     """argparse with one-line errors (exit status 2), like every other synth error."""
 
@@ -123,6 +205,34 @@ def build_parser():
     render.add_argument("--rows", type=int, default=10, help="partial-table rows to print (default 10)")
     render.add_argument("-q", "--quiet", action="store_true", help="print only where the file went")
     render.set_defaults(func=cmd_render)
+
+    midi = commands.add_parser("midi", help="render a MIDI file (format 0 or 1) through a patch or a channel map")
+    midi.add_argument("song", help="MIDI file (.mid)")
+    source = midi.add_mutually_exclusive_group(required=True)
+    source.add_argument("--patch", help="patch file (YAML) that plays every channel")
+    source.add_argument("--map", help="map file (YAML): MIDI channel 1-16 or track -> patch, gain, pan")
+    midi.add_argument("-o", "--output", help="output file (.wav or .flac); default renders/<song>.wav")
+    midi.add_argument("--a4", help="tuning: frequency of A4 (default 440 Hz; e.g. 442 or '415 Hz')")
+    midi.add_argument("--sample-rate", dest="sample_rate", help="output sample rate (default: the patch's or the map's)")
+    midi.add_argument("--bit-depth", dest="bit_depth", help="16, 24 or 32 (default: the patch's or the map's)")
+    midi.add_argument("--tail", help="seconds kept after the end of the file (default: until every note has decayed 100 dB, at most 60 s)")
+    midi.add_argument("-q", "--quiet", action="store_true", help="no progress bar; print only where the file went")
+    midi.set_defaults(func=cmd_midi)
+
+    batch = commands.add_parser("batch", help="render a sample library: every note x velocity x round robin of a spec")
+    batch.add_argument("spec", help="library spec (YAML): patch, notes, velocities, round_robin, variation, output")
+    batch.add_argument("--workers", type=int, help="local processes (default: every core; 1 renders in this process)")
+    batch.add_argument("--scheduler", metavar="ADDRESS", help="run the jobs on a Dask cluster, e.g. tcp://host:8786 (pip install '.[cluster]')")
+    batch.add_argument("-o", "--output", metavar="DIR", help="output folder (overrides the spec's output)")
+    batch.add_argument("--force", action="store_true", help="render every file again, even those up to date")
+    batch.set_defaults(func=cmd_batch)
+
+    tune = commands.add_parser("tune-bar", help="shape an undercut so a bar's first three partials land on chosen ratios")
+    tune.add_argument("patch", help="patch file (YAML) of a uniform rectangular bar: the blank")
+    tune.add_argument("--ratios", required=True, help="target ratios of partials 1:2:3, e.g. 1:4:10 (marimba) or 1:3:6 (xylophone)")
+    tune.add_argument("--points", type=int, default=41, help="profile points to report (default 41)")
+    tune.add_argument("-o", "--output", help="write the tuned patch (.yaml) here; default: print the profile")
+    tune.set_defaults(func=cmd_tune_bar)
     return parser
 
 

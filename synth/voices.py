@@ -1,0 +1,397 @@
+"""Voices of a MIDI render: one struck note of a patch, rendered in segments.
+
+A voice is the partial table of a patch voiced for one note (retuned to the
+note's pitch, scaled by its velocity: :func:`synth.voicing.voice_patch`),
+struck at an onset sample.  It rings with the patch's own T60s until its
+damper falls; from then on every mode decays with
+``T60 = min(own T60, damping.release_t60)``.  Pitch bend multiplies every
+mode frequency by the channel's bend ratio.
+
+Each change (the damper, a bend step) starts a new segment, and the engine
+renders the segment from the exact state of every mode at that sample: after
+L samples of a segment with per-sample decay sigma_m and frequency omega_m,
+
+    a_m <- a_m exp(-sigma_m L),    phi_m <- phi_m + omega_m L,
+
+so the signal and every mode's phase are continuous across the change.  A
+voice ends when the bound sum_m |a_m| e^(-sigma_m n) on its envelope has
+fallen :data:`DECAY_DB` below its value at the onset, so its cost is bounded
+whatever the length of the song.
+
+This module also holds the per-note cache of voiced partials, the pan law
+and the chunked, normalised writing of the song buffer.
+"""
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass
+
+import numpy as np
+import soundfile
+
+from .audio import DITHER_SEED, SUBTYPES, atomic_output, check_output_path, normalise, quantise
+from .engine import render_modes
+from .pipeline import partial_table
+from .units import A4_HZ
+from .voicing import voice_patch
+
+__all__ = [
+    "DECAY_DB",
+    "MAX_SEGMENT_SAMPLES",
+    "BEND_STEP_S",
+    "Tone",
+    "VoicingCache",
+    "pan_gains",
+    "decay_samples",
+    "voice_end",
+    "quantise_bends",
+    "render_voice",
+    "write_song",
+]
+
+LN_1000 = math.log(1000.0)  # dimensionless: ln of the amplitude ratio of 60 dB
+DECAY_DB = 100.0  # dB below its start at which a voice stops being rendered
+MAX_SEGMENT_SAMPLES = 1 << 16  # samples; longest single engine call (bounds working memory)
+BEND_STEP_S = 0.002  # s; pitch-bend changes are placed on a grid of this step
+WRITE_CHUNK_FRAMES = 1 << 16  # frames converted and written at a time
+
+
+@dataclass(frozen=True)
+class Tone:
+    """The audible partials of one voiced note: what a voice renders.
+
+    Attributes
+    ----------
+    frequency_hz, amplitude, phase, t60_s : ndarray [shape=(M,)]
+        Modes with amplitude > 0 of the voiced patch's partial table (Hz,
+        full-scale units, rad, s); read-only.
+    fundamental_hz : float, Hz
+    warnings : tuple of str
+        The partial table's warnings (stress near breaking, modes above Nyquist).
+    """
+
+    frequency_hz: np.ndarray
+    amplitude: np.ndarray
+    phase: np.ndarray
+    t60_s: np.ndarray
+    fundamental_hz: float
+    warnings: tuple = ()
+
+    @classmethod
+    def from_table(cls, table):
+        """The audible modes of a :class:`~synth.modes.PartialTable`."""
+        keep = table.amplitude > 0
+
+        def frozen(values):
+            array = np.array(values[keep], dtype=np.float64)
+            array.flags.writeable = False
+            return array
+
+        return cls(frozen(table.frequency_hz), frozen(table.amplitude), frozen(table.phase), frozen(table.t60_s),
+                   float(table.fundamental_hz), tuple(table.warnings))
+
+
+class VoicingCache:
+    """Voiced partials per (patch, note, velocity, A4), each computed once.
+
+    Parameters
+    ----------
+    patches : sequence of Patch
+        Indexed by the ``patch_index`` of :meth:`tone`.
+    a4_hz : float, Hz
+        Tuning reference for 12-TET note frequencies.
+
+    Attributes
+    ----------
+    solves : int
+        How many times modes were computed (cache misses).
+
+    Notes
+    -----
+    Only the compact :class:`Tone` is kept, not the whole partial table with
+    its per-mode report columns, so a file that uses thousands of distinct
+    note/velocity pairs stays small in memory.
+    """
+
+    def __init__(self, patches, *, a4_hz=A4_HZ):
+        self.patches = tuple(patches)
+        self.a4_hz = float(a4_hz)
+        self.solves = 0
+        self._tones = {}
+
+    def tone(self, patch_index, note, velocity):
+        """The :class:`Tone` of MIDI `note` (0..127) at `velocity` (1..127).
+
+        Raises
+        ------
+        PatchError
+            If the patch cannot reach the note's pitch (or has nothing to sound there).
+        """
+        key = (patch_index, int(note), int(velocity), self.a4_hz)
+        tone = self._tones.get(key)
+        if tone is None:
+            voiced = voice_patch(self.patches[patch_index], midi_note=int(note), velocity=int(velocity), a4_hz=self.a4_hz)
+            tone = Tone.from_table(partial_table(voiced))
+            self.solves += 1
+            self._tones[key] = tone
+        return tone
+
+    def items(self):
+        """((patch_index, note, velocity, a4_hz), Tone) of every voicing computed so far."""
+        return self._tones.items()
+
+
+def pan_gains(pan):
+    """(left, right) gains of a constant-power pan law.
+
+    Parameters
+    ----------
+    pan : float in [-1, 1]
+        -1 hard left, 0 centre, +1 hard right.
+
+    Notes
+    -----
+    ``theta = (pan + 1) pi / 4``, gains ``(cos theta, sin theta)``: the
+    power sum is 1 at every position, the centre is -3 dB per side
+    (common practice for a sine-cosine pan law).
+
+    >>> [round(g, 4) for g in pan_gains(0.0)]
+    [0.7071, 0.7071]
+    """
+    theta = (min(max(float(pan), -1.0), 1.0) + 1.0) * math.pi / 4.0
+    return math.cos(theta), math.sin(theta)
+
+
+def _sigma(t60_s, sample_rate):
+    """Per-sample decay rate (nepers per sample) of each T60 (s)."""
+    return LN_1000 / (np.asarray(t60_s, dtype=np.float64) * sample_rate)
+
+
+def _envelope(abs_amp, sigma, n):
+    """Bound sum_m |a_m| exp(-sigma_m n) on a voice's amplitude after n samples."""
+    return float(np.sum(abs_amp * np.exp(-sigma * n)))
+
+
+def decay_samples(abs_amp, sigma, level):
+    """Samples until ``sum_m |a_m| exp(-sigma_m n)`` falls to `level` (0 if already).
+
+    Parameters
+    ----------
+    abs_amp : ndarray [shape=(M,)], >= 0
+    sigma : ndarray [shape=(M,)], nepers per sample, >= 0
+    level : float > 0
+
+    Returns
+    -------
+    float
+        The smallest whole n (found by bisection) at which the bound is <= `level`;
+        ``inf`` if a mode with a > 0 never decays.
+    """
+    if _envelope(abs_amp, sigma, 0) <= level:
+        return 0.0
+    loud = abs_amp * abs_amp.size > level
+    if np.any(loud & (sigma <= 0)):
+        return math.inf
+    # At n_m every mode is below level / M, so the sum is below level.
+    low, high = 0, math.ceil(float(np.max(np.log(abs_amp[loud] * abs_amp.size / level) / sigma[loud])))
+    while high - low > 1:
+        middle = (low + high) // 2
+        if _envelope(abs_amp, sigma, middle) <= level:
+            high = middle
+        else:
+            low = middle
+    return float(high)
+
+
+def voice_end(tone, *, onset, damper, release_t60, sample_rate):
+    """Sample at which a voice has decayed :data:`DECAY_DB` below its start.
+
+    Parameters
+    ----------
+    tone : Tone
+    onset : int, samples
+    damper : int or None, samples
+        When the damper falls (None: never).
+    release_t60 : float > 0, s
+    sample_rate : float, Hz
+
+    Returns
+    -------
+    float
+        An absolute sample index (``inf`` if the voice never decays).
+    """
+    amp = np.abs(tone.amplitude)
+    level = 10.0 ** (-DECAY_DB / 20.0) * float(np.sum(amp))
+    free = decay_samples(amp, _sigma(tone.t60_s, sample_rate), level)
+    if damper is None or damper >= onset + free:
+        return onset + free
+    held = max(damper - onset, 0)
+    amp = amp * np.exp(-_sigma(tone.t60_s, sample_rate) * held)
+    release = _sigma(np.minimum(tone.t60_s, release_t60), sample_rate)
+    return onset + held + decay_samples(amp, release, level)
+
+
+def quantise_bends(samples, ratios, sample_rate, *, step_s=BEND_STEP_S):
+    """Place pitch-bend changes on a grid of `step_s`; the last value in a step wins.
+
+    Returns
+    -------
+    samples : ndarray of int64, sorted, unique
+    ratios : ndarray of float64
+        Frequency ratio in effect from each sample on.
+    """
+    step = max(1, round(step_s * sample_rate))
+    grid = {}
+    for sample, ratio in zip(samples, ratios):
+        grid[int(round(sample / step)) * step] = float(ratio)  # a later change in the same step wins
+    keys = sorted(grid)
+    return np.array(keys, dtype=np.int64), np.array([grid[k] for k in keys], dtype=np.float64)
+
+
+def _changes(onset, stop, damper, bend):
+    """Sorted (sample, ratio or None) changes inside (onset, stop); None marks the damper."""
+    changes = []
+    if damper is not None and onset < damper < stop:
+        changes.append((int(damper), None))
+    if bend is not None:
+        samples, ratios = bend
+        first = int(np.searchsorted(samples, onset, side="right"))
+        last = int(np.searchsorted(samples, stop, side="left"))
+        changes.extend((int(s), float(r)) for s, r in zip(samples[first:last], ratios[first:last]))
+    changes.sort(key=lambda change: (change[0], change[1] is not None))
+    return changes
+
+
+def _bend_at(bend, sample):
+    """Bend ratio in effect at `sample` (1 before any bend)."""
+    if bend is None:
+        return 1.0
+    samples, ratios = bend
+    index = int(np.searchsorted(samples, sample, side="right")) - 1
+    return float(ratios[index]) if index >= 0 else 1.0
+
+
+def render_voice(tone, *, onset, stop, damper, release_t60, sample_rate, bend=None):
+    """Render one voice, segment by segment.
+
+    Parameters
+    ----------
+    tone : Tone
+    onset : int, samples
+        First sample of the voice (absolute).
+    stop : int, samples
+        Render up to (not including) this absolute sample.
+    damper : int or None, samples
+        Absolute sample at which the damper falls; at or before `onset`
+        means the voice is damped from its first sample.
+    release_t60 : float > 0, s
+        T60 ceiling after the damper falls.
+    sample_rate : float, Hz
+    bend : (samples, ratios) or None
+        The channel's pitch-bend steps (:func:`quantise_bends`).
+
+    Yields
+    ------
+    start : int
+        Absolute sample of the segment's first value.
+    signal : ndarray [shape=(L,)], float32
+        L <= :data:`MAX_SEGMENT_SAMPLES`.
+
+    Notes
+    -----
+    Modes whose bent frequency reaches Nyquist are silent in that segment
+    (they keep their state, and sound again if the bend comes back down).
+    """
+    amp = np.array(tone.amplitude, dtype=np.float64)
+    phase = np.array(tone.phase, dtype=np.float64)
+    t60_free = np.asarray(tone.t60_s, dtype=np.float64)
+    t60_damped = np.minimum(t60_free, release_t60)
+    nyquist = 0.5 * sample_rate
+    damped = damper is not None and damper <= onset
+    ratio = _bend_at(bend, onset)
+    changes = _changes(onset, stop, damper, bend)
+    position, index = int(onset), 0
+    while position < stop:
+        boundary = changes[index][0] if index < len(changes) else stop
+        end = min(boundary, position + MAX_SEGMENT_SAMPLES)
+        length = end - position
+        t60 = t60_damped if damped else t60_free
+        frequency = tone.frequency_hz * ratio
+        on = frequency < nyquist
+        signal = render_modes(frequency[on], t60[on], amp[on], length / sample_rate, sample_rate, phase=phase[on])
+        yield position, _exact_length(signal, length)
+        amp *= np.exp(-_sigma(t60, sample_rate) * length)
+        phase = np.mod(phase + (2.0 * math.pi / sample_rate) * frequency * length, 2.0 * math.pi)
+        position = end
+        while index < len(changes) and changes[index][0] <= position:
+            if changes[index][1] is None:
+                damped = True
+            else:
+                ratio = changes[index][1]
+            index += 1
+
+
+def _exact_length(signal, length):
+    """`signal` cut or zero-padded to `length` samples (guards float rounding of n / fs * fs)."""
+    if signal.size == length:
+        return signal
+    out = np.zeros(length, np.float32)
+    out[: min(length, signal.size)] = signal[:length]
+    return out
+
+
+def write_song(path, buffer, *, sample_rate, bit_depth, peak_db):
+    """Normalise `buffer` in place and write it atomically, a chunk at a time.
+
+    Parameters
+    ----------
+    path : Path
+        ``.wav`` or ``.flac`` in an existing folder.
+    buffer : ndarray [shape=(n,) or (n, channels)], float32
+        The mixed song; scaled in place, so no second whole-song array is made.
+    sample_rate : float, Hz
+    bit_depth : {16, 24, 32}
+    peak_db : float or None
+        Peak target in dBFS, or None to keep the absolute scale.
+
+    Returns
+    -------
+    gain_db : float
+        Gain applied.
+    peak_dbfs : float
+        Peak of what was written (before quantisation), dBFS.
+
+    Raises
+    ------
+    RenderError
+        As :func:`synth.audio.normalise`: a non-finite signal, or a clip at
+        absolute scale.  Raised before anything is written.
+
+    Notes
+    -----
+    The gain (and every error) is that of :func:`synth.audio.normalise`,
+    applied to the song's peak.  16-bit TPDF dither uses the seed of
+    :func:`synth.audio.write_audio` for the first chunk and ``(seed, k)``
+    for chunk k, so a song shorter than one chunk writes the same bytes as
+    ``write_audio`` would.
+    """
+    fmt = check_output_path(path, bit_depth)
+    peak = 0.0
+    for start in range(0, buffer.shape[0], WRITE_CHUNK_FRAMES):
+        chunk_peak = float(np.max(np.abs(buffer[start : start + WRITE_CHUNK_FRAMES])))
+        if not math.isfinite(chunk_peak):
+            peak = chunk_peak  # normalise() names the problem
+            break
+        peak = max(peak, chunk_peak)
+    _, gain_db = normalise(np.array([peak], dtype=np.float32), peak_db=peak_db, bit_depth=bit_depth)
+    if gain_db:
+        buffer *= np.float32(10.0 ** (gain_db / 20.0))
+    channels = 1 if buffer.ndim == 1 else buffer.shape[1]
+    with atomic_output(path) as tmp:
+        with soundfile.SoundFile(str(tmp), "w", samplerate=int(sample_rate), channels=channels,
+                                 subtype=SUBTYPES[bit_depth], format=fmt) as handle:
+            for k, start in enumerate(range(0, buffer.shape[0], WRITE_CHUNK_FRAMES)):
+                seed = DITHER_SEED if k == 0 else (DITHER_SEED, k)
+                handle.write(quantise(buffer[start : start + WRITE_CHUNK_FRAMES], bit_depth, seed=seed))
+    peak *= 10.0 ** (gain_db / 20.0)
+    return gain_db, (20.0 * math.log10(peak) if peak > 0 else -math.inf)
