@@ -1,0 +1,646 @@
+"""Sample libraries: the spec, its jobs, file names, manifest, SFZ map and loudness.
+
+A library spec (YAML) names a patch and the notes, velocities and round robins
+to render; :func:`load_library_spec` checks it (every error names file, line
+and key) and :func:`library_jobs` turns it into one :class:`Job` per
+note x velocity x round robin, each carrying its voiced patch.  Execution lives
+in :mod:`synth.batch`; this module does no rendering and writes no files.
+
+Spec keys
+---------
+``patch``        patch file, relative to the spec file (required)
+``name``         library name (a slug; default: the patch's name), starts every file name
+``output``       output folder, relative to the spec file (default ``renders/<name>``
+                 in the working folder; ``--output`` overrides)
+``notes``        list of note names (``A2``, ``C#3``, ``Bb1``) or MIDI numbers, or
+                 ``{from: C2, to: C5, step: 1}`` (step in semitones)
+``velocities``   list of MIDI velocities 1..127: the layers (default ``[100]``)
+``round_robin``  variations of each note x velocity (default 1)
+``variation``    ``{position, detune_cents, seed}``: seeded jitter of each round robin
+
+Variation
+---------
+Every sample draws three numbers u0, u1, u2 uniform in [-1, 1) from
+``numpy.random.default_rng([seed, midi, velocity, round_robin])`` -- never from
+the order in which processes run.  The pitch is detuned by
+``detune_cents * u0`` cents and the excitation point moved by
+``position * u1`` (fraction of the length; ``position * u2`` is the second
+coordinate of a 2-D point), clipped to [0, 1].  The pickup does not move.
+
+File names
+----------
+``<name>_<midi:03d>_<note>_v<velocity:03d>_rr<round robin:02d>.wav``, e.g.
+``harp_045_A2_v040_rr01.wav``: sorted by key, then layer, then round robin.
+Every part is checked or computed (the name is a slug, the note is spelt from
+the MIDI number with ``s`` for a sharp), never copied from the spec text.
+"""
+from __future__ import annotations
+
+import dataclasses
+import hashlib
+import json
+import math
+import re
+from dataclasses import dataclass
+from pathlib import Path
+
+import numpy as np
+
+from . import __version__
+from .errors import PatchError
+from .modes import table_to_dict
+from .patch import load_patch
+from .schema import Field, Section, read_section
+from .units import midi_to_note, note_to_midi
+from .voicing import REFERENCE_VELOCITY, voice_patch
+from .yamlio import load_yaml_file
+
+__all__ = [
+    "LibrarySpec",
+    "Variation",
+    "Job",
+    "load_library_spec",
+    "library_jobs",
+    "sample_file_name",
+    "job_offsets",
+    "patch_fingerprint",
+    "library_hash",
+    "file_hash",
+    "dither_seed",
+    "loudness_lufs",
+    "partials_dict",
+    "key_ranges",
+    "velocity_ranges",
+    "sfz_text",
+    "read_manifest",
+    "manifest_text",
+    "index_texts",
+    "MANIFEST_NAME",
+    "MANIFEST_FORMAT",
+    "FORMAT_VERSION",
+    "LOUDNESS_METER",
+]
+
+MANIFEST_NAME = "manifest.json"
+MANIFEST_FORMAT = "synth-library"
+FORMAT_VERSION = 1  # bump when file naming, hashing or the manifest layout changes
+MAX_ROUND_ROBIN = 99  # round robins per note x velocity (two digits in the file name)
+MAX_JOBS = 100_000  # files per library: far beyond any sampler's practical size
+MAX_POSITION_JITTER = 0.5  # fraction of the length
+MAX_DETUNE_CENTS = 100.0  # cents: one semitone
+MIDI_LOW, MIDI_HIGH = 0, 127  # MIDI note numbers (MIDI 1.0)
+VELOCITY_LOW, VELOCITY_HIGH = 1, 127  # MIDI note-on velocities (0 means note-off)
+DITHER_STREAM = 0x5EED  # first word of every per-file dither seed
+LOUDNESS_BLOCK_S = 0.4  # s, gating block of ITU-R BS.1770 integrated loudness
+LOUDNESS_METER = (
+    "ITU-R BS.1770-4 gated integrated loudness, pyloudnorm Meter(filter_class='DeMan'): "
+    "the Recommendation's K-weighting coefficients at 48 kHz, redesigned for other rates"
+)
+_SAFE_FILE = re.compile(r"^[A-Za-z0-9][A-Za-z0-9_-]*_\d{3}_[A-Gs0-9-]+_v\d{3}_rr\d{2}\.wav$")
+
+_SPEC_FIELDS = {
+    "name": Field("slug"),
+    "patch": Field("str", required=True),
+    "output": Field("str"),
+    "notes": Field("any", required=True),
+    "velocities": Field("any"),
+    "round_robin": Field("int", default=1, low=1, high=MAX_ROUND_ROBIN),
+    "variation": Field("any"),
+}
+_VARIATION_FIELDS = {
+    "position": Field("number", default=0.0, low=0.0, high=MAX_POSITION_JITTER),
+    "detune_cents": Field("number", default=0.0, low=0.0, high=MAX_DETUNE_CENTS),
+    "seed": Field("int", default=0, low=0),
+}
+_RANGE_FIELDS = {
+    "from": Field("any", required=True),
+    "to": Field("any", required=True),
+    "step": Field("int", default=1, low=1, high=MIDI_HIGH),
+}
+
+
+@dataclass(frozen=True)
+class Variation:
+    """Seeded jitter of the round robins.
+
+    position : float in [0, 0.5], fraction of the length (+- range of the excitation point)
+    detune_cents : float in [0, 100], cents (+- range of the pitch)
+    seed : int >= 0
+    """
+
+    position: float = 0.0
+    detune_cents: float = 0.0
+    seed: int = 0
+
+
+@dataclass(frozen=True)
+class LibrarySpec:
+    """A checked library spec.  `notes` holds (text as written, MIDI number), sorted by MIDI number."""
+
+    name: str
+    patch: object
+    patch_file: str
+    output: Path
+    notes: tuple
+    velocities: tuple
+    round_robin: int
+    variation: Variation
+    source: str
+
+
+@dataclass(frozen=True)
+class Job:
+    """One sample: a note x velocity x round robin, its file and its voiced patch.
+
+    `patch` is None and `error` says why when the note cannot be voiced (for
+    example a pitch the object cannot reach).
+    """
+
+    index: int
+    note: str
+    midi: int
+    velocity: int
+    round_robin: int
+    file: str
+    detune_cents: float
+    excitation_position: tuple | None
+    patch: object = None
+    error: str | None = None
+
+    @property
+    def label(self):
+        """Human-readable description, e.g. ``A2, velocity 40, round robin 1``."""
+        return f"{self.note}, velocity {self.velocity}, round robin {self.round_robin}"
+
+
+# ---------------------------------------------------------------------------
+# The spec
+
+
+def load_library_spec(path, *, output=None):
+    """Read and check the library spec at `path`.
+
+    Parameters
+    ----------
+    path : str or os.PathLike
+    output : str or None
+        ``--output``: overrides the spec's ``output`` (relative to the working folder).
+
+    Returns
+    -------
+    LibrarySpec
+
+    Raises
+    ------
+    PatchError
+        Naming the file, line and key of the first problem (patch-file
+        problems name the patch file).
+    """
+    file = str(path)
+    mapping = load_yaml_file(path)
+    if not isinstance(mapping, dict):
+        raise PatchError(
+            "a library spec must be a mapping with keys patch, notes, velocities, round_robin, variation, output, name",
+            file=file,
+            line=1,
+        )
+    top = Section(mapping, file=file)
+    values = read_section(top, _SPEC_FIELDS)
+    base = Path(path).parent
+    patch_path = base / values["patch"]
+    if not patch_path.is_file():
+        raise top.error("patch", f"no patch file {str(patch_path)!r} (paths are relative to the spec file)")
+    patch = load_patch(patch_path)
+    name = values["name"] or patch.name
+    notes = _notes(top, mapping["notes"])
+    velocities = _velocities(top, mapping.get("velocities"))
+    variation = Variation()
+    if mapping.get("variation") is not None:
+        variation = Variation(**read_section(top.child("variation"), _VARIATION_FIELDS))
+    n_jobs = len(notes) * len(velocities) * values["round_robin"]
+    if n_jobs > MAX_JOBS:
+        raise top.error("notes", f"{n_jobs} files (notes x velocities x round_robin) is more than the {MAX_JOBS} a library may hold")
+    if output is not None:
+        folder = Path(output)
+        if folder.exists() and not folder.is_dir():
+            raise PatchError(f"{output!r} exists and is not a folder", key="--output")
+    elif values["output"] is not None:
+        folder = base / values["output"]
+        if folder.exists() and not folder.is_dir():
+            raise top.error("output", f"{str(folder)!r} exists and is not a folder")
+    else:
+        folder = Path("renders") / name
+    return LibrarySpec(
+        name=name,
+        patch=patch,
+        patch_file=values["patch"],
+        output=folder,
+        notes=notes,
+        velocities=velocities,
+        round_robin=values["round_robin"],
+        variation=variation,
+        source=file,
+    )
+
+
+def _midi_of(value):
+    """MIDI number of a note name or a whole number; ValueError says what is allowed."""
+    if isinstance(value, bool):
+        raise ValueError(f"{value!r} is not a note")
+    if isinstance(value, int):
+        midi = value
+    elif isinstance(value, str):
+        midi = note_to_midi(value)
+    else:
+        raise ValueError(f"{value!r} is not a note name (e.g. A4, C#3, Bb1) or a MIDI number")
+    if not MIDI_LOW <= midi <= MIDI_HIGH:
+        raise ValueError(f"{value!r} is MIDI note {midi}, outside the MIDI range {MIDI_LOW}..{MIDI_HIGH} (C-1..G9)")
+    return midi
+
+
+def _notes(top, value):
+    """((text, midi), ...) sorted by MIDI number, from a list or a {from, to, step} range."""
+    line = top.line("notes")
+    if isinstance(value, dict):
+        section = top.child("notes")
+        fields = read_section(section, _RANGE_FIELDS)
+        ends = {}
+        for key in ("from", "to"):
+            try:
+                ends[key] = _midi_of(fields[key])
+            except ValueError as error:
+                raise section.error(key, str(error)) from None
+        if ends["from"] > ends["to"]:
+            raise section.error("to", f"must not be below 'from' ({fields['from']}): the range runs upwards")
+        midis = range(ends["from"], ends["to"] + 1, fields["step"])
+        return tuple((midi_to_note(m), m) for m in midis)
+    if not isinstance(value, list) or not value:
+        raise PatchError(
+            "must be a list of notes (e.g. [A2, A3, A4]) or a range {from: C2, to: C5, step: 1}",
+            file=top.file, line=line, key="notes",
+        )
+    notes, seen = [], {}
+    for i, item in enumerate(value):
+        try:
+            midi = _midi_of(item)
+        except ValueError as error:
+            raise PatchError(str(error), file=top.file, line=line, key=f"notes[{i}]") from None
+        if midi in seen:
+            raise PatchError(
+                f"{item!r} is the same key as {seen[midi]!r} (MIDI {midi}): each note may appear once",
+                file=top.file, line=line, key=f"notes[{i}]",
+            )
+        seen[midi] = item
+        notes.append((str(item), midi))
+    return tuple(sorted(notes, key=lambda note: note[1]))
+
+
+def _velocities(top, value):
+    line = top.line("velocities")
+    if value is None:
+        return (REFERENCE_VELOCITY,)
+    if not isinstance(value, list) or not value:
+        raise PatchError(
+            f"must be a list of MIDI velocities ({VELOCITY_LOW}..{VELOCITY_HIGH}), e.g. [40, 100]",
+            file=top.file, line=line, key="velocities",
+        )
+    for i, item in enumerate(value):
+        if isinstance(item, bool) or not isinstance(item, int) or not VELOCITY_LOW <= item <= VELOCITY_HIGH:
+            raise PatchError(
+                f"{item!r} is not a MIDI velocity (a whole number {VELOCITY_LOW}..{VELOCITY_HIGH})",
+                file=top.file, line=line, key=f"velocities[{i}]",
+            )
+        if value.index(item) != i:
+            raise PatchError(f"velocity {item} appears twice", file=top.file, line=line, key=f"velocities[{i}]")
+    return tuple(sorted(value))
+
+
+# ---------------------------------------------------------------------------
+# Jobs
+
+
+def sample_file_name(name, midi, velocity, round_robin):
+    """The file name of one sample (see the module notes); checked before use."""
+    note = midi_to_note(midi).replace("#", "s")
+    file = f"{name}_{int(midi):03d}_{note}_v{int(velocity):03d}_rr{int(round_robin):02d}.wav"
+    if not _SAFE_FILE.match(file):  # pragma: no cover - every part is checked above
+        raise ValueError(f"unsafe sample file name {file!r}")
+    return file
+
+
+def job_offsets(variation, midi, velocity, round_robin):
+    """The three uniform numbers in [-1, 1) of one sample (see the module notes)."""
+    rng = np.random.default_rng([int(variation.seed), int(midi), int(velocity), int(round_robin)])
+    return rng.uniform(-1.0, 1.0, size=3)
+
+
+def _moved_point(point, jitter, offsets):
+    """`point` (synth.patch.Point) with the excitation jitter applied, clipped to [0, 1]."""
+    if point is None or jitter == 0.0:
+        return point
+    values = list(point.values)
+    if point.style == "fraction":
+        values[0] = float(np.clip(values[0] + jitter * offsets[1], 0.0, 1.0))
+    elif point.style == "xy":
+        values = [float(np.clip(v + jitter * u, 0.0, 1.0)) for v, u in zip(values, offsets[1:])]
+    elif point.style == "polar":
+        values[0] = float(np.clip(values[0] + jitter * offsets[1], 0.0, 1.0))
+    return dataclasses.replace(point, values=tuple(values))
+
+
+def library_jobs(spec):
+    """One :class:`Job` per note x velocity x round robin, sorted by file name."""
+    jobs = []
+    for note, midi in spec.notes:
+        for velocity in spec.velocities:
+            for rr in range(1, spec.round_robin + 1):
+                offsets = job_offsets(spec.variation, midi, velocity, rr)
+                detune = float(spec.variation.detune_cents * offsets[0])
+                point = _moved_point(spec.patch.excitation.position, spec.variation.position, offsets)
+                patch, error = None, None
+                try:
+                    voiced = voice_patch(spec.patch, midi_note=midi, velocity=velocity, detune_cents=detune)
+                    patch = dataclasses.replace(voiced, excitation=dataclasses.replace(voiced.excitation, position=point))
+                except PatchError as exc:
+                    error = str(exc)
+                jobs.append(Job(
+                    index=len(jobs),
+                    note=note,
+                    midi=midi,
+                    velocity=velocity,
+                    round_robin=rr,
+                    file=sample_file_name(spec.name, midi, velocity, rr),
+                    detune_cents=detune,
+                    excitation_position=None if point is None else tuple(point.values),
+                    patch=patch,
+                    error=error,
+                ))
+    return jobs
+
+
+# ---------------------------------------------------------------------------
+# Hashes: what a file depends on
+
+
+def _canonical(value):
+    """A JSON-ready form of `value` with a stable layout (dataclasses by field)."""
+    if dataclasses.is_dataclass(value) and not isinstance(value, type):
+        out = {"__type__": type(value).__name__}
+        for f in dataclasses.fields(value):
+            if f.compare:
+                out[f.name] = _canonical(getattr(value, f.name))
+        kind = getattr(type(value), "TYPE", None)
+        if kind is not None:
+            out["__resonator__"] = kind
+        return out
+    if isinstance(value, dict):
+        return {str(k): _canonical(v) for k, v in value.items()}
+    if isinstance(value, (list, tuple, np.ndarray)):
+        return [_canonical(v) for v in value]
+    if isinstance(value, (bool, str)) or value is None:
+        return value
+    if isinstance(value, (int, np.integer)):
+        return int(value)
+    if isinstance(value, (float, np.floating)):
+        return float(value)
+    return repr(value)
+
+
+def _digest(value):
+    text = json.dumps(_canonical(value), sort_keys=True, separators=(",", ":"))
+    return hashlib.sha256(text.encode("utf-8")).hexdigest()
+
+
+def patch_fingerprint(patch):
+    """SHA-256 of every value of `patch` that changes its sound (not its file name or lines)."""
+    return _digest({"patch": dataclasses.replace(patch, source="", lines={})})
+
+
+def dither_seed(job):
+    """The fixed dither seed of one sample, from its key, layer and round robin."""
+    return [DITHER_STREAM, int(job.midi), int(job.velocity), int(job.round_robin)]
+
+
+def _job_basis(job):
+    key = {"midi": job.midi, "velocity": job.velocity, "round_robin": job.round_robin, "file": job.file}
+    if job.patch is None:
+        return {"job": key, "error": job.error}
+    return {"job": key, "patch": patch_fingerprint(job.patch), "dither_seed": dither_seed(job)}
+
+
+def library_hash(jobs):
+    """SHA-256 of everything the library's one gain depends on: every job's parameters."""
+    return _digest({
+        "format_version": FORMAT_VERSION,
+        "synth_version": __version__,
+        "jobs": [_job_basis(job) for job in jobs],
+    })
+
+
+def file_hash(job, gain):
+    """SHA-256 of the effective parameters of one file: its job, patch, dither and the library gain."""
+    return _digest({
+        "format_version": FORMAT_VERSION,
+        "synth_version": __version__,
+        "gain": float(gain),
+        **_job_basis(job),
+    })
+
+
+# ---------------------------------------------------------------------------
+# Measurements
+
+
+def loudness_lufs(signal, sample_rate):
+    """Integrated loudness (LUFS) of a mono signal, after ITU-R BS.1770-4.
+
+    Parameters
+    ----------
+    signal : ndarray [shape=(n,)], float, full scale 1.0
+    sample_rate : float, Hz
+
+    Returns
+    -------
+    loudness : float or None, LUFS
+        None when it cannot be measured; `note` says why.
+    note : str or None
+
+    Notes
+    -----
+    Measured with pyloudnorm's meter using the "DeMan" filter design, which
+    reproduces the Recommendation's tabulated 48 kHz K-weighting coefficients
+    (and so reads a 0 dBFS 997 Hz sine as -3.01 LKFS); pyloudnorm's default
+    design reads it 0.04 LU low.  The gated measure needs at least one 400 ms
+    block, so shorter samples get None.
+    """
+    import pyloudnorm
+
+    signal = np.asarray(signal, dtype=np.float64)
+    duration = len(signal) / float(sample_rate)
+    if len(signal) < LOUDNESS_BLOCK_S * float(sample_rate):
+        return None, f"not measured: {duration:.3g} s is shorter than one {LOUDNESS_BLOCK_S * 1000:.0f} ms gating block (ITU-R BS.1770)"
+    try:
+        value = pyloudnorm.Meter(float(sample_rate), filter_class="DeMan").integrated_loudness(signal)
+    except ValueError as error:
+        return None, f"not measured: {error}"
+    if not math.isfinite(value):
+        return None, "not measured: every block is below the -70 LUFS absolute gate (ITU-R BS.1770)"
+    return float(value), None
+
+
+def partials_dict(table):
+    """The partial table as in ``synth modes --json``, without list-valued columns.
+
+    Per-mode lists (node positions) are left out to keep the manifest small;
+    ``synth modes`` lists them.
+    """
+    data = table_to_dict(table)
+    data["modes"] = [{k: v for k, v in mode.items() if not isinstance(v, list)} for mode in data["modes"]]
+    return data
+
+
+# ---------------------------------------------------------------------------
+# SFZ mapping
+
+
+def key_ranges(keys):
+    """{key: (lokey, hikey)}: each sample covers the keys nearer to it than to a neighbour.
+
+    A key midway between two samples goes to the lower one; the lowest sample
+    reaches as far down as it reaches up, the highest as far up as it reaches
+    down (within MIDI 0..127).
+    """
+    keys = sorted(set(keys))
+    ranges = {}
+    for i, key in enumerate(keys):
+        low = (keys[i - 1] + key) // 2 + 1 if i > 0 else None
+        high = (key + keys[i + 1]) // 2 if i < len(keys) - 1 else None
+        ranges[key] = [low, high]
+    for key, span in ranges.items():
+        low, high = span
+        if low is None:
+            low = max(MIDI_LOW, key - ((high - key) if high is not None else 0))
+        if high is None:
+            high = min(MIDI_HIGH, key + (key - low))
+        ranges[key] = (low, high)
+    return ranges
+
+
+def velocity_ranges(velocities):
+    """{velocity: (lovel, hivel)}: a layer plays up to its own velocity; the top one up to 127."""
+    velocities = sorted(set(velocities))
+    ranges = {}
+    for i, velocity in enumerate(velocities):
+        low = VELOCITY_LOW if i == 0 else velocities[i - 1] + 1
+        high = VELOCITY_HIGH if i == len(velocities) - 1 else velocity
+        ranges[velocity] = (low, high)
+    return ranges
+
+
+def sfz_text(name, entries, *, comment_lines=()):
+    """An SFZ file mapping `entries` (manifest entries) onto keys and velocities.
+
+    One ``<group>`` per note x velocity with ``lokey hikey pitch_keycenter
+    lovel hivel seq_length``, one ``<region>`` per round robin with
+    ``sample`` and ``seq_position``.  ``amp_veltrack=0``: the samples already
+    carry their dynamics, so the sampler must not scale them by velocity again.
+    """
+    groups = {}
+    for entry in sorted(entries, key=lambda e: (e["midi"], e["velocity"], e["round_robin"])):
+        groups.setdefault((entry["midi"], entry["velocity"]), []).append(entry)
+    keys = key_ranges([midi for midi, _ in groups])
+    layers = {}
+    for midi, velocity in groups:
+        layers.setdefault(midi, []).append(velocity)
+    lines = [f"// {name}: sample map written by synth {__version__}"]
+    lines += [f"// {line}" for line in comment_lines]
+    lines += ["<global>", "amp_veltrack=0", ""]
+    for (midi, velocity), members in groups.items():
+        lokey, hikey = keys[midi]
+        lovel, hivel = velocity_ranges(layers[midi])[velocity]
+        lines.append(
+            f"<group> lokey={lokey} hikey={hikey} pitch_keycenter={midi} lovel={lovel} hivel={hivel} "
+            f"seq_length={len(members)}"
+        )
+        for position, entry in enumerate(members, start=1):
+            lines.append(f"<region> sample={entry['file']} seq_position={position}")
+        lines.append("")
+    return "\n".join(lines)
+
+
+# ---------------------------------------------------------------------------
+# The manifest file
+
+
+def read_manifest(folder):
+    """The manifest in `folder` as a dict, or None if absent, unreadable or of another format."""
+    try:
+        data = json.loads((Path(folder) / MANIFEST_NAME).read_text(encoding="utf-8"))
+    except (OSError, ValueError):
+        return None
+    if not isinstance(data, dict) or data.get("format") != MANIFEST_FORMAT or data.get("format_version") != FORMAT_VERSION:
+        return None
+    if not isinstance(data.get("library"), dict) or not isinstance(data.get("files"), list):
+        return None
+    return data
+
+
+def manifest_text(manifest):
+    """JSON text of `manifest`: the header indented, then one line per file (it stays small)."""
+    head = {key: value for key, value in manifest.items() if key != "files"}
+    text = json.dumps(head, indent=1, allow_nan=False)
+    files = ",\n".join("  " + json.dumps(entry, allow_nan=False) for entry in manifest["files"])
+    return text[:-2] + ',\n "files": [\n' + files + ("\n" if files else "") + " ]\n}\n"
+
+
+def index_texts(spec, jobs, entries, failed, *, lib_hash, gain, basis):
+    """(manifest JSON text, SFZ text) of a library.
+
+    Parameters
+    ----------
+    spec : LibrarySpec
+    jobs : list of Job
+    entries : dict of job index -> manifest entry (files on disk)
+    failed : dict of job index -> error message
+    lib_hash : str
+        :func:`library_hash` of `jobs`.
+    gain : float or None
+        The library's one gain (linear).
+    basis : dict or None
+        How the gain was decided.
+    """
+    render = spec.patch.render
+    files = [entries[i] for i in sorted(entries)]
+    current = [entry for entry in files if entry["up_to_date"]]
+    gain_db = None if not gain else 20.0 * math.log10(gain)
+    library = {
+        "name": spec.name,
+        "spec": Path(spec.source).name,
+        "patch": spec.patch_file,
+        "patch_name": spec.patch.name,
+        "notes": [text for text, _ in spec.notes],
+        "velocities": list(spec.velocities),
+        "round_robin": spec.round_robin,
+        "variation": dataclasses.asdict(spec.variation),
+        "sample_rate": render.sample_rate,
+        "bit_depth": render.bit_depth,
+        "duration_s": render.duration,
+        "peak_db": render.peak_db,
+        "gain": gain,
+        "gain_db": gain_db,
+        "gain_basis": basis,
+        "hash": lib_hash,
+        "loudness_meter": LOUDNESS_METER,
+        "n_files": len(jobs),
+        "complete": len(current) == len(jobs),
+        "failed": [{"file": jobs[i].file, "note": jobs[i].note, "velocity": jobs[i].velocity,
+                    "round_robin": jobs[i].round_robin, "error": message} for i, message in sorted(failed.items())],
+    }
+    manifest = {"format": MANIFEST_FORMAT, "format_version": FORMAT_VERSION, "synth_version": __version__,
+                "library": library, "files": files}
+    comments = (
+        f"{len(current)} samples of patch {spec.patch.name}; one gain for the whole library"
+        + (f" ({gain_db:+.2f} dB)" if gain_db is not None else "") + ", so velocity layers keep their dynamics",
+        "listening caution: start playback quietly; long exposure to loud sound harms hearing",
+    )
+    return manifest_text(manifest), sfz_text(spec.name, current, comment_lines=comments) + "\n"
