@@ -233,6 +233,7 @@ EXTRA_TEXT_COLUMNS = {
     "nodal_lines_x": ("lines x", "{}"),
     "nodal_lines_y": ("lines y", "{}"),
     "nodal_lines": ("nodal lines", "{}"),
+    "timoshenko_shift_cents": ("shear cents", "{:+.1f}"),
 }
 
 
