@@ -20,6 +20,7 @@ demo: $(STAMP)
 		$(BIN)/synth render "$$patch" --quiet || exit 1; \
 	done
 	@$(BIN)/synth midi patches/midi/demo-song.mid --map patches/midi/demo-map.yaml -o renders/demo-song.wav --quiet
+	@$(BIN)/synth batch patches/library/demo-library.yaml
 	@echo "listening caution: start playback quietly and raise it slowly; long exposure to loud sound harms hearing"
 
 test: $(STAMP)

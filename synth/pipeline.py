@@ -4,13 +4,11 @@ These functions glue the rooms together; they do no file work.
 """
 from __future__ import annotations
 
-import math
 
 import numpy as np
 
 from .damping import two_point_t60
 from .engine import render_modes
-from .errors import PatchError
 from .excitation import excitation_weights
 from .modes import NODE_TOLERANCE, PartialTable, frozen_array
 from .resonators import resonator_modes, resonator_name

@@ -11,7 +11,6 @@ from __future__ import annotations
 
 import json
 import math
-import re
 
 import numpy as np
 import pytest
@@ -30,6 +29,7 @@ from synth.resonators.membrane import (
 )
 
 from .analysis import measured_t60, peak_near, read_wav
+from .cli_checks import check_bad_patch
 
 # REFERENCES.md sec. 3 example [C]: a = 0.1 m, T = 1000 N/m, sigma = 0.25 kg/m^2.
 A, T, SIGMA = 0.1, 1000.0, 0.25
@@ -474,16 +474,4 @@ BAD_CASES = [
 @pytest.mark.parametrize("command", ["render", "modes"])
 @pytest.mark.parametrize(("text", "key", "line", "phrase"), BAD_CASES)
 def test_bad_membrane_patch(tmp_path, monkeypatch, capsys, command, text, key, line, phrase):
-    monkeypatch.chdir(tmp_path)
-    (tmp_path / "patch.yaml").write_text(text, encoding="utf-8")
-    argv = ["render", "patch.yaml", "-o", "out.wav"] if command == "render" else ["modes", "patch.yaml"]
-    status = main(argv)
-    out, err = capsys.readouterr()
-    assert status == 2
-    assert out == ""
-    assert "Traceback" not in err
-    lines = err.strip().splitlines()
-    assert len(lines) == 1, err
-    assert lines[0].startswith(f"synth: error: patch.yaml:{line}: {key}: "), lines[0]
-    assert re.search(phrase, lines[0]), lines[0]
-    assert sorted(p.name for p in tmp_path.iterdir()) == ["patch.yaml"]
+    check_bad_patch(tmp_path, monkeypatch, capsys, command, text, key, line, phrase)
