@@ -4,7 +4,6 @@ These functions glue the rooms together; they do no file work.
 """
 from __future__ import annotations
 
-
 import numpy as np
 
 from .damping import two_point_t60
