@@ -39,6 +39,7 @@ from __future__ import annotations
 import dataclasses
 import hashlib
 import json
+import os
 import math
 import re
 from dataclasses import dataclass
@@ -225,7 +226,7 @@ def load_library_spec(path, *, output=None):
         if folder.exists() and not folder.is_dir():
             raise PatchError(f"{output!r} exists and is not a folder", key="--output")
     elif values["output"] is not None:
-        folder = base / values["output"]
+        folder = Path(os.path.normpath(base / values["output"]))
         if folder.exists() and not folder.is_dir():
             raise top.error("output", f"{str(folder)!r} exists and is not a folder")
     else:
