@@ -38,16 +38,10 @@ from __future__ import annotations
 
 import io
 import math
-import multiprocessing
-import os
-import queue
-import re
 import signal
 import sys
 import threading
 import time
-from concurrent.futures import ProcessPoolExecutor
-from concurrent.futures.process import BrokenProcessPool
 from dataclasses import dataclass
 from pathlib import Path
 
@@ -55,6 +49,7 @@ import numpy as np
 
 from .audio import SUBTYPES, atomic_output, normalise, peak_dbfs, quantise
 from .engine import render_modes
+from .executors import backend, default_workers
 from .errors import ModalError, PatchError, RenderError
 from .library import (
     MANIFEST_NAME,
@@ -73,11 +68,8 @@ from .pipeline import partial_table, render_patch
 __all__ = ["LibraryResult", "build_library", "summary_lines", "default_workers", "PEAK_PREFIX_S"]
 
 PEAK_PREFIX_S = 0.25  # s, first span rendered when measuring a job's peak (doubled until exact)
-POLL_S = 0.1  # s, how often the parent looks for Ctrl-C while waiting for results
 MANIFEST_INTERVAL_S = 30.0  # s, the manifest is also rewritten this often during a long run
-CONNECT_TIMEOUT_S = 10.0  # s, to reach a Dask scheduler
 LN_1000 = math.log(1000.0)  # amplitude ratio of 60 dB, as ln
-_ADDRESS = re.compile(r"^(?:[a-z][a-z0-9]*://)?[A-Za-z0-9_.\[\]:-]+:\d{1,5}$|^inproc://\S+$")
 
 # ---------------------------------------------------------------------------
 # Work done in the workers (or inline): pure functions of the task.
@@ -150,176 +142,6 @@ def _execute(task):
         return "error", str(error)
     except Exception as error:  # noqa: BLE001 - one broken job must not stop the library
         return "error", f"internal error ({type(error).__name__}: {error}); please report this patch"
-
-
-def _ignore_sigint():
-    """Pool initializer: workers ignore Ctrl-C, so only the parent decides how to stop."""
-    signal.signal(signal.SIGINT, signal.SIG_IGN)
-
-
-# ---------------------------------------------------------------------------
-# Where the work runs
-
-
-class _Inline:
-    """Runs tasks one by one in this process (``workers=1``)."""
-
-    description = "this process"
-
-    def __enter__(self):
-        return self
-
-    def __exit__(self, *exc):
-        return False
-
-    def run(self, tasks, stop):
-        for index, task in enumerate(tasks):
-            if stop.requested:
-                return
-            yield index, _execute(task)
-
-
-class _Futures:
-    """Shared loop for executors with futures: yield results as they come, stop on request."""
-
-    def _submit(self, task):  # pragma: no cover - abstract
-        raise NotImplementedError
-
-    def _cancel(self, futures):
-        for future in futures:
-            future.cancel()
-
-    def _outcome(self, future):
-        try:
-            return future.result()
-        except Exception as error:  # noqa: BLE001 - a dead worker fails its jobs, not the run
-            return "error", f"the worker running this job failed ({type(error).__name__}: {error})"
-
-    def run(self, tasks, stop):
-        done = queue.SimpleQueue()
-        index_of = {}
-        for index, task in enumerate(tasks):
-            future = self._submit(task)
-            index_of[future] = index
-            future.add_done_callback(done.put)
-        remaining = len(index_of)
-        while remaining and not stop.requested:
-            try:
-                future = done.get(timeout=POLL_S)
-            except queue.Empty:
-                continue
-            remaining -= 1
-            yield index_of[future], self._outcome(future)
-        if remaining:
-            yield from self._drain(index_of, done, remaining)
-
-    def _drain(self, index_of, done, remaining):
-        """After a stop: cancel every job not yet handed back; results still in flight are dropped."""
-        self._cancel([future for future in index_of if not future.done()])
-        return iter(())
-
-
-class _Pool(_Futures):
-    """A local process pool of `workers` processes."""
-
-    def __init__(self, workers):
-        self.workers = workers
-        self.description = f"{workers} local processes"
-
-    def __enter__(self):
-        methods = multiprocessing.get_all_start_methods()
-        context = multiprocessing.get_context("forkserver" if "forkserver" in methods else "spawn")
-        if context.get_start_method() == "forkserver":
-            context.set_forkserver_preload(["synth.batch"])
-        self.executor = ProcessPoolExecutor(max_workers=self.workers, mp_context=context, initializer=_ignore_sigint)
-        return self
-
-    def __exit__(self, *exc):
-        self.executor.shutdown(wait=exc[0] is None, cancel_futures=True)
-        return False
-
-    def _submit(self, task):
-        return self.executor.submit(_execute, task)
-
-    def _outcome(self, future):
-        try:
-            return future.result()
-        except BrokenProcessPool as error:
-            raise RenderError(
-                f"the worker processes stopped ({error}): one ran out of memory or could not start; from a script, "
-                "call build_library under 'if __name__ == \"__main__\":' (or use workers=1); files written so far are kept"
-            ) from None
-
-    def _drain(self, index_of, done, remaining):
-        """Cancel the jobs not started; wait for the running ones (a few) and hand back their results.
-
-        Every future not yet handed back puts itself on `done` exactly once,
-        when it completes or is cancelled.
-        """
-        for future in index_of:
-            future.cancel()
-        while remaining:
-            future = done.get()
-            remaining -= 1
-            if not future.cancelled():
-                yield index_of[future], self._outcome(future)
-
-
-class _Dask(_Futures):
-    """The jobs submitted to an existing Dask distributed scheduler."""
-
-    def __init__(self, address):
-        self.address = address
-        self.description = f"Dask scheduler {address}"
-
-    def __enter__(self):
-        if not _ADDRESS.match(self.address):
-            raise PatchError(
-                f"{self.address!r} is not a scheduler address: give PROTOCOL://HOST:PORT, e.g. tcp://10.0.0.5:8786",
-                key="--scheduler",
-            )
-        try:
-            from distributed import Client
-        except ImportError:
-            raise PatchError(
-                "needs Dask distributed, the optional extra 'cluster': pip install '.[cluster]'", key="--scheduler"
-            ) from None
-        try:
-            self.client = Client(self.address, timeout=CONNECT_TIMEOUT_S, set_as_default=False)
-        except (OSError, TimeoutError, ValueError, TypeError) as error:
-            raise PatchError(f"cannot reach a Dask scheduler at {self.address!r}: {error}", key="--scheduler") from None
-        return self
-
-    def __exit__(self, *exc):
-        self.client.close()
-        return False
-
-    def _submit(self, task):
-        return self.client.submit(_execute, task, pure=False)
-
-    def _cancel(self, futures):
-        if futures:
-            self.client.cancel(futures)
-
-
-def default_workers():
-    """How many CPU cores this process may use."""
-    try:
-        return len(os.sched_getaffinity(0))
-    except AttributeError:  # not on every platform
-        return os.cpu_count() or 1
-
-
-def _backend(workers, scheduler, n_tasks):
-    if scheduler is not None:
-        if workers is not None:
-            raise PatchError("give --workers for a local run or --scheduler for a Dask cluster, not both", key="--workers")
-        return _Dask(scheduler)
-    if workers is not None and (isinstance(workers, bool) or not isinstance(workers, int) or workers < 1):
-        raise PatchError(f"must be a whole number >= 1, got {workers!r}", key="--workers")
-    workers = default_workers() if workers is None else workers
-    workers = max(1, min(workers, n_tasks))
-    return _Inline() if workers == 1 else _Pool(workers)
 
 
 class _StopFlag:
@@ -433,7 +255,7 @@ class _Run:
         self.loudest = basis.get("loudest_file") if isinstance(basis, dict) else None
         return True
 
-    def measure_gain(self, backend, stop, progress):
+    def measure_gain(self, executor, stop, progress):
         """Decide the gain from every job's peak; False if interrupted."""
         peak_db = self.spec.patch.render.peak_db
         if peak_db is None:
@@ -443,7 +265,7 @@ class _Run:
         todo = [job for job in self.jobs if job.patch is not None]
         peaks = {}
         with _progress(len(todo), "measuring peaks", progress) as bar:
-            for index, (status, value) in backend.run([("peak", job.patch) for job in todo], stop):
+            for index, (status, value) in executor.run([("peak", job.patch) for job in todo], stop):
                 job = todo[index]
                 if status == "ok":
                     peaks[job.index] = value
@@ -569,12 +391,12 @@ def build_library(spec_path, *, output=None, workers=None, scheduler=None, force
     spec = load_library_spec(spec_path, output=output)
     jobs = library_jobs(spec)
     run = _Run(spec, jobs, force)
-    backend = _backend(workers, scheduler, len(jobs))
+    executor = backend(_execute, workers, scheduler, len(jobs))
     rendered = 0
-    with backend, _StopFlag() as stop:
+    with executor, _StopFlag() as stop:
         measure_started = time.perf_counter()
-        if not run.recorded_gain() and not run.measure_gain(backend, stop, progress):
-            return _result(run, backend, started, 0.0, 0, "measuring", True)
+        if not run.recorded_gain() and not run.measure_gain(executor, stop, progress):
+            return _result(run, executor, started, 0.0, 0, "measuring", True)
         measure_s = time.perf_counter() - measure_started
         try:
             run.folder.mkdir(parents=True, exist_ok=True)
@@ -588,7 +410,7 @@ def build_library(spec_path, *, output=None, workers=None, scheduler=None, force
             tasks = [("render", job.patch, run.gain, dither_seed(job)) for job in todo]
             last_write = time.monotonic()
             with _progress(len(tasks), "rendering", progress) as bar:
-                for index, (status, value) in backend.run(tasks, stop):
+                for index, (status, value) in executor.run(tasks, stop):
                     job = todo[index]
                     if status == "ok":
                         run.store(job, value)
@@ -606,7 +428,7 @@ def build_library(spec_path, *, output=None, workers=None, scheduler=None, force
             _try_index(run)
             raise RenderError(f"cannot write to {str(run.folder)!r}: {error.strerror or error}") from None
         run.write_index()
-        return _result(run, backend, started, measure_s, rendered, "rendering", stop.requested)
+        return _result(run, executor, started, measure_s, rendered, "rendering", stop.requested)
 
 
 def _try_index(run):
@@ -617,7 +439,7 @@ def _try_index(run):
         pass
 
 
-def _result(run, backend, started, measure_s, rendered, stage, interrupted):
+def _result(run, executor, started, measure_s, rendered, stage, interrupted):
     spec, jobs = run.spec, run.jobs
     return LibraryResult(
         name=spec.name,
@@ -633,7 +455,7 @@ def _result(run, backend, started, measure_s, rendered, stage, interrupted):
         gain=run.gain,
         gain_reused=run.reused,
         loudest=run.loudest,
-        backend=backend.description,
+        backend=executor.description,
         elapsed_s=time.perf_counter() - started,
         measure_s=measure_s,
         n_on_disk=len(run.entries),

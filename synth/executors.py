@@ -1,0 +1,196 @@
+"""Where batch work runs: in this process, a local process pool, or a Dask cluster.
+
+Each executor runs a module-level function `work(task) -> result` over a list
+of tasks and yields ``(index, result)`` as results come in, stopping early when
+a stop flag is raised (Ctrl-C): a pool lets running tasks finish and hands
+their results back; Dask cancels what has not come back.
+"""
+from __future__ import annotations
+
+import multiprocessing
+import os
+import queue
+import re
+import signal
+from concurrent.futures import ProcessPoolExecutor
+from concurrent.futures.process import BrokenProcessPool
+
+from .errors import PatchError, RenderError
+
+__all__ = ["Inline", "Pool", "Dask", "backend", "default_workers", "POLL_S", "CONNECT_TIMEOUT_S"]
+
+POLL_S = 0.1  # s, how often the parent looks for Ctrl-C while waiting for results
+CONNECT_TIMEOUT_S = 10.0  # s, to reach a Dask scheduler
+_ADDRESS = re.compile(r"^(?:[a-z][a-z0-9]*://)?[A-Za-z0-9_.\[\]:-]+:\d{1,5}$|^inproc://\S+$")
+
+
+def _ignore_sigint():
+    """Pool initializer: workers ignore Ctrl-C, so only the parent decides how to stop."""
+    signal.signal(signal.SIGINT, signal.SIG_IGN)
+
+
+class Inline:
+    """Runs tasks one by one in this process (``workers=1``)."""
+
+    description = "this process"
+
+    def __init__(self, work):
+        self.work = work
+
+    def __enter__(self):
+        return self
+
+    def __exit__(self, *exc):
+        return False
+
+    def run(self, tasks, stop):
+        for index, task in enumerate(tasks):
+            if stop.requested:
+                return
+            yield index, self.work(task)
+
+
+class _Futures:
+    """Shared loop for executors with futures: yield results as they come, stop on request."""
+
+    def _submit(self, task):  # pragma: no cover - abstract
+        raise NotImplementedError
+
+    def _cancel(self, futures):
+        for future in futures:
+            future.cancel()
+
+    def _outcome(self, future):
+        try:
+            return future.result()
+        except Exception as error:  # noqa: BLE001 - a dead worker fails its jobs, not the run
+            return "error", f"the worker running this job failed ({type(error).__name__}: {error})"
+
+    def run(self, tasks, stop):
+        done = queue.SimpleQueue()
+        index_of = {}
+        for index, task in enumerate(tasks):
+            future = self._submit(task)
+            index_of[future] = index
+            future.add_done_callback(done.put)
+        remaining = len(index_of)
+        while remaining and not stop.requested:
+            try:
+                future = done.get(timeout=POLL_S)
+            except queue.Empty:
+                continue
+            remaining -= 1
+            yield index_of[future], self._outcome(future)
+        if remaining:
+            yield from self._drain(index_of, done, remaining)
+
+    def _drain(self, index_of, done, remaining):
+        """After a stop: cancel every job not yet handed back; results still in flight are dropped."""
+        self._cancel([future for future in index_of if not future.done()])
+        return iter(())
+
+
+class Pool(_Futures):
+    """A local process pool of `workers` processes running `work` (a module-level function)."""
+
+    def __init__(self, work, workers):
+        self.work = work
+        self.workers = workers
+        self.description = f"{workers} local processes"
+
+    def __enter__(self):
+        methods = multiprocessing.get_all_start_methods()
+        context = multiprocessing.get_context("forkserver" if "forkserver" in methods else "spawn")
+        if context.get_start_method() == "forkserver":
+            context.set_forkserver_preload([self.work.__module__])
+        self.executor = ProcessPoolExecutor(max_workers=self.workers, mp_context=context, initializer=_ignore_sigint)
+        return self
+
+    def __exit__(self, *exc):
+        self.executor.shutdown(wait=exc[0] is None, cancel_futures=True)
+        return False
+
+    def _submit(self, task):
+        return self.executor.submit(self.work, task)
+
+    def _outcome(self, future):
+        try:
+            return future.result()
+        except BrokenProcessPool as error:
+            raise RenderError(
+                f"the worker processes stopped ({error}): one ran out of memory or could not start; from a script, "
+                "call build_library under 'if __name__ == \"__main__\":' (or use workers=1); files written so far are kept"
+            ) from None
+
+    def _drain(self, index_of, done, remaining):
+        """Cancel the jobs not started; wait for the running ones (a few) and hand back their results.
+
+        Every future not yet handed back puts itself on `done` exactly once,
+        when it completes or is cancelled.
+        """
+        for future in index_of:
+            future.cancel()
+        while remaining:
+            future = done.get()
+            remaining -= 1
+            if not future.cancelled():
+                yield index_of[future], self._outcome(future)
+
+
+class Dask(_Futures):
+    """The jobs submitted to an existing Dask distributed scheduler."""
+
+    def __init__(self, work, address):
+        self.work = work
+        self.address = address
+        self.description = f"Dask scheduler {address}"
+
+    def __enter__(self):
+        if not _ADDRESS.match(self.address):
+            raise PatchError(
+                f"{self.address!r} is not a scheduler address: give PROTOCOL://HOST:PORT, e.g. tcp://10.0.0.5:8786",
+                key="--scheduler",
+            )
+        try:
+            from distributed import Client
+        except ImportError:
+            raise PatchError(
+                "needs Dask distributed, the optional extra 'cluster': pip install '.[cluster]'", key="--scheduler"
+            ) from None
+        try:
+            self.client = Client(self.address, timeout=CONNECT_TIMEOUT_S, set_as_default=False)
+        except (OSError, TimeoutError, ValueError, TypeError) as error:
+            raise PatchError(f"cannot reach a Dask scheduler at {self.address!r}: {error}", key="--scheduler") from None
+        return self
+
+    def __exit__(self, *exc):
+        self.client.close()
+        return False
+
+    def _submit(self, task):
+        return self.client.submit(self.work, task, pure=False)
+
+    def _cancel(self, futures):
+        if futures:
+            self.client.cancel(futures)
+
+
+def default_workers():
+    """How many CPU cores this process may use."""
+    try:
+        return len(os.sched_getaffinity(0))
+    except AttributeError:  # not on every platform
+        return os.cpu_count() or 1
+
+
+def backend(work, workers, scheduler, n_tasks):
+    """Where `n_tasks` calls of `work` run: Dask if `scheduler`, else a pool or this process."""
+    if scheduler is not None:
+        if workers is not None:
+            raise PatchError("give --workers for a local run or --scheduler for a Dask cluster, not both", key="--workers")
+        return Dask(work, scheduler)
+    if workers is not None and (isinstance(workers, bool) or not isinstance(workers, int) or workers < 1):
+        raise PatchError(f"must be a whole number >= 1, got {workers!r}", key="--workers")
+    workers = default_workers() if workers is None else workers
+    workers = max(1, min(workers, n_tasks))
+    return Inline(work) if workers == 1 else Pool(work, workers)
