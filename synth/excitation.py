@@ -8,16 +8,20 @@ into mode m (displacement at the pickup, up to one common factor):
 * strike (a velocity impulse through a contact of duration tau):
   ``phi_m(x0) phi_m(xp) / omega_m * H(f_m)``, sounding as a sine, where
   ``H(f) = |cos(pi f tau)| / |1 - (2 f tau)**2|`` is the spectrum of a
-  half-sine contact force relative to its value at 0 Hz;
-* impulse (an ideal tap heard as velocity): ``phi_m(x0) phi_m(xp)``.
+  half-sine contact force relative to its value at 0 Hz (used through its
+  notch-free envelope, :func:`contact_envelope`);
+* impulse (a flat excitation: every mode driven equally, weighted only by its
+  shape at the two points): ``phi_m(x0) phi_m(xp)``, sounding as a sine from
+  rest -- the brightest option, for auditioning the mode set itself.
 
 For a string (phi_n = sin(n pi x / L), omega_n proportional to n) the pluck
 gives the familiar triangle series ``sin(n pi beta) / n**2`` and the strike
-``sin(n pi beta) / n``.  Amplitudes are scaled so that `strength` is a peak
-level in full-scale units: for the pluck it is the initial deflection at the
-pluck point (the triangle's height); for the strike and impulse the same
-scaling is taken without the contact roll-off, so the low modes' level is
-proportional to `strength` whatever the contact time.
+``sin(n pi beta) / n``.  Amplitudes are scaled so that `strength` is a level
+in full-scale units: for the pluck it is the initial deflection at the pluck
+point (the triangle's height); for the strike and impulse it is the largest
+single mode's contribution at the excitation point, before the contact
+roll-off.  Either way the low modes' level is proportional to `strength` and
+does not depend on the contact time, the sample rate or the mode count.
 
 References
 ----------
@@ -30,7 +34,7 @@ import math
 
 import numpy as np
 
-__all__ = ["EXCITATIONS", "excitation_weights", "contact_spectrum"]
+__all__ = ["EXCITATIONS", "excitation_weights", "contact_spectrum", "contact_envelope"]
 
 EXCITATIONS = ("pluck", "strike", "impulse")
 
@@ -48,6 +52,25 @@ def contact_spectrum(frequency_hz, contact_time):
     with np.errstate(divide="ignore", invalid="ignore"):
         h = np.abs(np.cos(0.5 * math.pi * x) / (1.0 - x**2))
     return np.where(np.isclose(x, 1.0, rtol=0, atol=1e-9), math.pi / 4.0, h)
+
+
+def contact_envelope(frequency_hz, contact_time):
+    """Notch-free envelope of :func:`contact_spectrum` through its lobe peaks.
+
+    Equal to the half-sine spectrum up to f = 1/tau (x = 2 f tau = 2, where it
+    is 1/3), and ``1 / (x**2 - 1)`` above, which touches every side-lobe peak
+    (x = 4, 6, ...).  A real felt contact is never an exact half-sine, so its
+    spectrum has no exact zeros; the envelope also keeps brightness growing
+    smoothly as a harder blow shortens the contact, instead of sweeping zeros
+    through the partials.
+
+    >>> float(np.round(contact_envelope(2000.0, 1e-3), 6))  # x = 4: 1/15
+    0.066667
+    """
+    x = 2.0 * np.asarray(frequency_hz, dtype=float) * contact_time
+    with np.errstate(divide="ignore"):
+        tail = 1.0 / np.maximum(x**2 - 1.0, 1e-300)
+    return np.where(x <= 2.0, contact_spectrum(frequency_hz, contact_time), tail)
 
 
 def excitation_weights(kind, frequency_hz, excitation_shape, pickup_shape, *, strength=1.0, contact_time=0.0):
@@ -85,16 +108,20 @@ def excitation_weights(kind, frequency_hz, excitation_shape, pickup_shape, *, st
     elif kind == "strike":
         drive = phi_e / omega
         if contact_time > 0:
-            rolloff = contact_spectrum(f, contact_time)
+            rolloff = contact_envelope(f, contact_time)
         base_phase = 0.0
     else:
         drive = phi_e.copy()
         base_phase = 0.0
-    # Scale so that the response at the excitation point itself is `strength`:
-    # sum(drive * phi_e) is the deflection there (the triangle height for a
-    # pluck).  The contact roll-off is applied after, so a longer contact takes
-    # away high modes without changing the level of the low ones.
-    norm = float(np.sum(drive * phi_e))
+    # Scale to `strength`.  A pluck's sum(drive * phi_e) is the deflection at the
+    # pluck point (the triangle's height), a sum that converges as modes are
+    # added.  A strike's or impulse's sum grows with the mode count, so they
+    # are scaled by their largest single-mode term instead: the level of the
+    # low modes then does not depend on how many modes are computed.  The
+    # contact roll-off is applied after, so a longer contact takes away high
+    # modes without changing the level of the low ones.
+    terms = drive * phi_e
+    norm = float(np.sum(terms)) if kind == "pluck" else float(np.max(np.abs(terms), initial=0.0))
     signed = drive * rolloff * phi_p * (strength / norm if norm > 0 else 0.0)
     amplitude = np.abs(signed)
     phase = np.where(signed < 0, base_phase + math.pi, base_phase)

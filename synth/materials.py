@@ -32,6 +32,9 @@ class Material:
     strength_by_diameter : tuple of (diameter m, strength Pa) pairs
         For drawn wire the strength depends on the gauge; where given, it is
         interpolated in log-log and overrides `tensile_strength`.
+    shear_modulus : float or None, Pa
+        Where the isotropic G = E / (2 (1 + nu)) does not hold (wood along the
+        grain is far softer in shear); None means isotropic.
     source : str
         Where the values come from.
     """
@@ -43,6 +46,7 @@ class Material:
     tensile_strength: float | None = None
     strength_by_diameter: tuple = ()
     source: str = ""
+    shear_modulus: float | None = None
 
     def strength_at(self, diameter=None):
         """Tensile strength (Pa) for a wire of `diameter` (m), or None if unknown."""
@@ -114,12 +118,16 @@ MATERIALS = {
         Material(
             "maple", 706.0, 12.6 * GPA, 0.42,
             source="USDA Wood Handbook FPL-GTR-190 (2010) Table 5-3a, sugar maple at "
-            "12% MC along the grain (nu_LR 0.424); density = SG 0.63 x 1.12 x 1000",
+            "12% MC along the grain (nu_LR 0.424); density = SG 0.63 x 1.12 x 1000; "
+            "shear modulus E_L / 12.5 (hardwood G_L of about E_L/12..E_L/16, from memory)",
+            shear_modulus=12.6 * GPA / 12.5,
         ),
         Material(
             "rosewood", 1010.0, 20 * GPA, 0.35,
             source="USDA FPL tech sheet (Honduras rosewood air-dry 930-1090 kg/m^3); "
-            "E_L 17-26 GPa (Bremaud 2012, JASA 131:807, second-hand); nu from memory",
+            "E_L 17-26 GPa (Bremaud 2012, JASA 131:807, second-hand); nu from memory; "
+            "shear modulus E_L / 12.5 (hardwood G_L of about E_L/12..E_L/16, from memory)",
+            shear_modulus=20 * GPA / 12.5,
         ),
     )
 }

@@ -67,20 +67,26 @@ def partial_table(patch, *, modes=None):
             f"{2 * modes.frequency_hz[0]:.0f} Hz",
         )
     fundamental = float(modes.frequency_hz[0])
-    kept = modes.select(keep)
+    # Weights are computed over every computed mode, then the ones at or above
+    # Nyquist are dropped: the level of a mode does not depend on the sample rate.
     amplitude, phase = excitation_weights(
         patch.excitation.kind,
-        kept.frequency_hz,
-        kept.excitation_shape,
-        kept.pickup_shape,
+        modes.frequency_hz,
+        modes.excitation_shape,
+        modes.pickup_shape,
         strength=patch.excitation.strength,
         contact_time=patch.excitation.contact_time,
     )
-    if "level_override_db" in kept.columns:
+    if "level_override_db" in modes.columns:
         # Levels given per mode (a measured partial set) replace the excitation's
         # weighting; the amplitudes sum to `strength`, as a pluck's do at its point.
-        weight = 10.0 ** (np.asarray(kept.columns["level_override_db"], dtype=float) / 20.0)
+        weight = 10.0 ** (np.asarray(modes.columns["level_override_db"], dtype=float) / 20.0)
         amplitude = patch.excitation.strength * weight / np.sum(weight)
+    scale = np.abs(modes.excitation_shape * modes.pickup_shape)
+    null = scale <= NODE_TOLERANCE * max(float(np.max(scale)), 1e-300)
+    amplitude = np.where(null, 0.0, amplitude)
+    kept = modes.select(keep)
+    amplitude, phase, null = amplitude[keep], phase[keep], null[keep]
     damping = patch.damping
     if damping.t60_high is not None and damping.high_frequency <= fundamental:
         raise patch.error(
@@ -98,14 +104,15 @@ def partial_table(patch, *, modes=None):
         # Decay times given per mode (None: the damping section's) replace the two-point T60.
         given = np.array([np.nan if v is None else v for v in kept.columns["t60_s"]], dtype=float)
         t60 = np.where(np.isfinite(given), given, t60)
-    scale = np.abs(kept.excitation_shape * kept.pickup_shape)
-    null = scale <= NODE_TOLERANCE * max(float(np.max(scale)), 1e-300)
-    amplitude = np.where(null, 0.0, amplitude)
     peak = float(np.max(amplitude)) if amplitude.size else 0.0
-    if peak <= 0.0 or patch.excitation.strength == 0.0:
+    if patch.excitation.strength == 0.0:
+        raise patch.error("excitation.strength", "must be > 0 to sound")
+    if peak <= 0.0:
+        excitation_sounds = np.any(np.abs(kept.excitation_shape) > NODE_TOLERANCE * np.max(np.abs(kept.excitation_shape), initial=0.0))
+        key = "pickup.position" if excitation_sounds and patch.pickup.position is not None else "excitation.position"
         raise patch.error(
-            "excitation.position",
-            "nothing would sound: the excitation or pickup sits on a node of every mode, or strength is 0",
+            key,
+            f"nothing would sound: the {key.split('.')[0]} sits on a node of every mode below Nyquist",
         )
     with np.errstate(divide="ignore"):
         level_db = np.where(null, np.nan, 20.0 * np.log10(np.maximum(amplitude, 1e-300) / peak))

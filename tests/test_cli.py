@@ -171,3 +171,19 @@ def test_cli_overrides_are_render_keys():
     text = parser.format_help()
     assert "modes" in text and "render" in text
     assert math.isclose(synth.load_patch(PATCHES[0], overrides={"render.duration": ("0.5 s", "--duration")}).render.duration, 0.5)
+
+
+@pytest.mark.parametrize("command", [
+    "synth modes patches/string-bass-steel-a1.yaml --rows 12",
+    "synth modes patches/partials-bell-invented.yaml --rows 6",
+])
+def test_readme_tables_are_what_the_tool_prints(command, capsys, monkeypatch):
+    """The README quotes real tables: keep them true."""
+    root = Path(__file__).resolve().parent.parent
+    readme = (root / "README.md").read_text(encoding="utf-8")
+    assert f"`{command}`" in readme
+    monkeypatch.chdir(root)
+    assert main(command.split()[1:]) == 0
+    printed = capsys.readouterr().out.rstrip("\n")
+    block = readme.split(f"`{command}`", 1)[1].split("```\n", 1)[1].split("```", 1)[0].rstrip("\n")
+    assert block == printed

@@ -2,12 +2,13 @@
 from __future__ import annotations
 
 import math
+import textwrap
 
 import numpy as np
 import pytest
 
 from synth.damping import LN1000, two_point_t60
-from synth.excitation import contact_spectrum, excitation_weights
+from synth.excitation import contact_envelope, contact_spectrum, excitation_weights
 
 
 def _string(n_modes, beta, xp=None):
@@ -93,3 +94,53 @@ class TestDamping:
 
     def test_flat_without_high_point(self):
         np.testing.assert_allclose(two_point_t60([100, 5000], t60=2.5, fundamental_hz=100), 2.5)
+
+
+class TestContactEnvelope:
+    def test_through_lobe_peaks(self):
+        # The half-sine spectrum's side lobes peak where |cos(pi f tau)| = 1, i.e. at
+        # x = 2 f tau = 2, 4, 6 ..., with height 1 / (x^2 - 1) (REFERENCES.md sec. 10 form).
+        tau = 1e-3
+        for x in (2.0, 4.0, 6.0, 10.0):
+            f = x / (2 * tau)
+            assert contact_envelope(f, tau) == pytest.approx(1 / (x * x - 1), rel=1e-9)
+            assert contact_envelope(f, tau) == pytest.approx(contact_spectrum(f, tau), rel=1e-9)
+
+    def test_no_notches_and_monotone(self):
+        tau = 1e-3
+        f = np.linspace(0.0, 20.0 / tau, 4001)
+        env = contact_envelope(f, tau)
+        assert np.all(env >= contact_spectrum(f, tau) - 1e-12)
+        assert np.all(np.diff(env) <= 1e-12) and np.all(env > 0)
+
+
+class TestLevelIndependence:
+    """The level of the low modes must not depend on the mode count or the sample rate."""
+
+    @pytest.mark.parametrize("kind", ["pluck", "strike", "impulse"])
+    def test_mode_count(self, kind):
+        first = []
+        for n_modes in (64, 256, 1024):
+            n, f, phi_e, phi_p = _string(n_modes, 0.13, xp=0.77)
+            amplitude, _ = excitation_weights(kind, f, phi_e, phi_p, contact_time=1e-4)
+            first.append(amplitude[:3])
+        # A pluck's normalising sum converges like its tail sum_{n>N} sin^2/n^2 ~ 1/(2N),
+        # against pi^2 beta (1 - beta) / 2 = 0.56: 1.4% at N = 64, 0.35% at N = 256.
+        np.testing.assert_allclose(first[0], first[2], rtol=0.02 if kind == "pluck" else 1e-12)
+        np.testing.assert_allclose(first[1], first[2], rtol=0.005 if kind == "pluck" else 1e-12)
+
+    @pytest.mark.parametrize("kind", ["pluck", "strike", "impulse"])
+    def test_sample_rate(self, kind, write_patch):
+        import synth
+
+        text = f"""\
+        name: rate
+        resonator: {{type: string, material: music-wire, length: 0.65, diameter: 0.45 mm, pitch: A2}}
+        excitation: {{type: {kind}, position: 0.13, contact_time: 0.3 ms}}
+        pickup: {{position: 0.77}}
+        render: {{max_modes: 256, sample_rate: 16000}}
+        """
+        low = synth.partial_table(synth.patch_from_text(textwrap.dedent(text)))
+        high = synth.partial_table(synth.patch_from_text(textwrap.dedent(text).replace("16000", "48000")))
+        assert len(high.amplitude) > len(low.amplitude)
+        np.testing.assert_allclose(low.amplitude[:10], high.amplitude[:10], rtol=1e-12)

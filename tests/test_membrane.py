@@ -35,7 +35,10 @@ from .cli_checks import check_bad_patch
 A, T, SIGMA = 0.1, 1000.0, 0.25
 ONE_CENT = 5.8e-4  # rtol of one cent: 2**(1/1200) - 1
 
-# Abramowitz & Stegun (1964) table 9.5, as tabulated in REFERENCES.md sec. 3: j_mn.
+# j_mn as tabulated in REFERENCES.md sec. 3: computed there [C] with scipy and matching
+# Abramowitz & Stegun (1964) table 9.5 (table number from memory); of these, 2.40483,
+# 5.52008, 8.65373, 3.83171 and 5.13562 were seen in a published excerpt. The independent
+# check is the Brent search on J_m below, not scipy's jn_zeros (which the module uses).
 AS_TABLE_95 = {
     (0, 1): 2.404826, (0, 2): 5.520078, (0, 3): 8.653728,
     (1, 1): 3.831706, (1, 2): 7.015587, (1, 3): 10.173468,
@@ -467,7 +470,7 @@ BAD_CASES = [
     pytest.param(
         _edit("  shape: circle\n  radius: 0.1 m", "  shape: rectangle\n  width: 0.3 m\n  height: 0.2 m")
         .replace("{radius: 0.45, angle: 10 deg}", "[0.3, 0.5]").replace("{radius: 0.7, angle: 55 deg}", "[1.0, 0.4]"),
-        "excitation.position", 11, r"nothing would sound", id="pickup-on-the-edge"),
+        "pickup.position", 14, r"nothing would sound: the pickup sits on a node", id="pickup-on-the-edge"),
 ]
 
 
@@ -475,3 +478,45 @@ BAD_CASES = [
 @pytest.mark.parametrize(("text", "key", "line", "phrase"), BAD_CASES)
 def test_bad_membrane_patch(tmp_path, monkeypatch, capsys, command, text, key, line, phrase):
     check_bad_patch(tmp_path, monkeypatch, capsys, command, text, key, line, phrase)
+
+
+class TestMaterialChecks:
+    """With material + thickness, the membrane reports its stress and says when bending matters."""
+
+    FOIL = """\
+    name: foil
+    resonator:
+      type: membrane
+      shape: circle
+      radius: 80 mm
+      material: aluminium-6061
+      thickness: 0.05 mm
+      tension: {tension}
+    render: {{max_modes: 40}}
+    """
+
+    def _table(self, tension):
+        import textwrap
+
+        from synth import partial_table, patch_from_text
+
+        return partial_table(patch_from_text(textwrap.dedent(self.FOIL.format(tension=tension))))
+
+    def test_stress_is_tension_over_thickness(self):
+        # Common practice: membrane stress = tension per length / thickness.
+        table = self._table("600 N/m")
+        assert table.parameters["stress_pa"] == pytest.approx(600 / 0.05e-3, rel=1e-12)
+        assert table.parameters["stress_percent_of_strength"] == pytest.approx(100 * 12e6 / 310e6, rel=1e-9)
+
+    def test_warns_near_breaking(self):
+        # 6061-T6 UTS 310 MPa (Aluminum Association via MatWeb): 14000 N/m on 0.05 mm is 280 MPa.
+        assert any("working ceiling" in w for w in self._table("14000 N/m").warnings)
+        assert any("would break" in w for w in self._table("16000 N/m").warnings)
+
+    def test_bending_note(self):
+        # D = E h^3 / (12 (1 - nu^2)); D k^2 / T = 0.01 at k = sqrt(0.01 T / D), f = c k / (2 pi).
+        e, h, nu, rho, t = 68.9e9, 0.05e-3, 0.33, 2700.0, 600.0
+        d = e * h**3 / (12 * (1 - nu**2))
+        onset = math.sqrt(t / (rho * h)) * math.sqrt(0.01 * t / d) / (2 * math.pi)
+        note = [w for w in self._table("600 N/m").warnings if "bending stiffness" in w]
+        assert len(note) == 1 and f"{onset:.0f} Hz" in note[0]

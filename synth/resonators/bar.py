@@ -38,7 +38,9 @@ Modes above :data:`MODE_CEILING_HZ` are not computed, nor more than
 References
 ----------
 .. [1] R. D. Blevins, *Formulas for Natural Frequency and Mode Shape*, Van
-   Nostrand Reinhold (1979), table 8-1.
+   Nostrand Reinhold (1979), table 8-1 (table number from memory; the first
+   roots are also in W. T. Thomson, *Theory of Vibration with Applications*,
+   app. D).
 .. [2] S. M. Han, H. Benaroya and T. Wei, "Dynamics of transversely vibrating
    beams using four engineering theories", J. Sound Vib. 225(5), 935-988 (1999).
 .. [3] T. D. Rossing, *Science of Percussion Instruments*, World Scientific
@@ -247,6 +249,8 @@ def build_spec(values):
     if values["length"] is None and values["pitch"] is None:
         raise SpecError("give length, or pitch (which solves the length)")
     shear = values["shear_modulus"]
+    if shear is None:
+        shear = material.shear_modulus  # wood: far softer in shear than isotropic
     if shear is None:
         shear = material.youngs_modulus / (2.0 * (1.0 + material.poisson_ratio))  # isotropic
     spec = BarSpec(
@@ -474,17 +478,21 @@ def _solve(spec, length, n, *, with_shift=True):
     return frequency, 1200.0 * np.log2(ratio), shape, solver, len(thick_fe[3]) - 1
 
 
+def _shear_note(labels, shift):
+    """Report note: where the (applied) Timoshenko correction exceeds a few cents, or None."""
+    big = [(label, s) for label, s in zip(labels, shift) if s < -TIMOSHENKO_NOTE_CENTS]
+    if not big:
+        return None
+    shown = ", ".join(f"{label} {s:+.0f}" for label, s in big[:4])
+    return (
+        f"applied; lowers partials more than {TIMOSHENKO_NOTE_CENTS:g} cents below thin-bar theory "
+        f"from {big[0][0]} up ({shown} cents; column shear cents)"
+    )
+
+
 def _warnings(spec, labels, frequency, shift, length, n_modes):
     warnings = []
-    if shift is not None:
-        big = [(label, s) for label, s in zip(labels, shift) if s < -TIMOSHENKO_NOTE_CENTS]
-        if big:
-            shown = ", ".join(f"{label} {s:+.0f}" for label, s in big[:4])
-            warnings.append(
-                f"shear and rotary inertia (Timoshenko) put partials more than {TIMOSHENKO_NOTE_CENTS:g} cents "
-                f"below thin-bar theory from {big[0][0]} up ({shown} cents; column timoshenko_shift_cents)"
-            )
-    elif spec.theory == "euler-bernoulli" and len(frequency) >= 2:
+    if shift is None and spec.theory == "euler-bernoulli" and len(frequency) >= 2:
         size = float(np.mean(spec.profile)) if spec.profile else (spec.diameter or spec.thickness)
         radius = _radius_of_gyration(spec, size)
         k = beam_roots(spec.supports, min(3, len(frequency))) / length
@@ -577,6 +585,9 @@ def bar_modes(spec, *, excitation_position, pickup_position, n_modes):
     if spec.theory == "timoshenko":
         parameters["shear_modulus_pa"] = spec.shear_modulus
         parameters["shear_coefficient"] = shear_coefficient(spec)
+        note = _shear_note(labels, shift)
+        if note is not None:
+            parameters["shear_correction"] = note
     parameters["solver"] = solver
     if elements is not None:
         parameters["fe_elements"] = elements

@@ -23,7 +23,12 @@ A resonator module ``synth/resonators/<name>.py`` provides
 """
 from __future__ import annotations
 
-__all__ = ["SpecError", "UnreachablePitch"]
+__all__ = ["SpecError", "UnreachablePitch", "SAFE_STRESS_FRACTION", "stress_warnings"]
+
+#: Working stress above this fraction of the tensile strength gets a warning.
+#: Common practice (makers commonly keep working tension well below breaking;
+#: about 60% is a frequently used ceiling), not a published limit.
+SAFE_STRESS_FRACTION = 0.60
 
 
 class SpecError(ValueError):
@@ -39,3 +44,26 @@ class SpecError(ValueError):
 
 class UnreachablePitch(ValueError):
     """The requested pitch cannot be reached by this object's geometry."""
+
+
+def stress_warnings(stress, strength, what):
+    """Warnings (list of str) for a working `stress` (Pa) against `strength` (Pa).
+
+    Empty below :data:`SAFE_STRESS_FRACTION`; `what` names the part ("string").
+    The figures are previews: the message defers to the maker's data.
+    """
+    if not strength:
+        return []
+    fraction = stress / strength
+    head = (
+        f"{what} stress {stress / 1e6:.0f} MPa is {100 * fraction:.0f}% of the tensile strength "
+        f"({strength / 1e6:.0f} MPa)"
+    )
+    if fraction >= 1.0:
+        return [f"{head}: this {what} would break; this is a preview, defer to the maker's data"]
+    if fraction > SAFE_STRESS_FRACTION:
+        return [
+            f"{head}, above the {100 * SAFE_STRESS_FRACTION:.0f}% working ceiling (common practice): "
+            "risk of breaking; this is a preview, defer to the maker's data"
+        ]
+    return []

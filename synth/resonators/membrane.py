@@ -32,7 +32,7 @@ turned to the pickup instead (every m > 0 mode is then silent anyway).
 References
 ----------
 .. [1] M. Abramowitz and I. A. Stegun, *Handbook of Mathematical Functions*,
-   NBS (1964), table 9.5 (zeros of J_m).
+   NBS (1964), table 9.5 (zeros of J_m; table number from memory).
 .. [2] N. H. Fletcher and T. D. Rossing, *The Physics of Musical Instruments*,
    2nd ed., Springer (1998), sec. 3.2-3.5 (rectangular and circular membranes).
 """
@@ -47,7 +47,7 @@ from scipy.special import jn_zeros, jv
 
 from ..modes import ModeSet, frozen_array
 from ..schema import Field
-from .common import SpecError, UnreachablePitch
+from .common import SpecError, UnreachablePitch, stress_warnings
 
 __all__ = [
     "FIELDS",
@@ -109,6 +109,9 @@ class MembraneSpec:
         Name for the report ("custom" when `areal_density` was given).
     thickness : float or None, m
         Where the areal density came from material density x thickness.
+    youngs_modulus, poisson_ratio, tensile_strength : float or None
+        The material's, when given by material + thickness: used for the
+        stress report and the bending-stiffness note (bending is not modelled).
     """
 
     shape: str
@@ -120,6 +123,9 @@ class MembraneSpec:
     pitch_hz: float | None = None
     material: str = "custom"
     thickness: float | None = None
+    youngs_modulus: float | None = None
+    poisson_ratio: float | None = None
+    tensile_strength: float | None = None
 
     TYPE: ClassVar[str] = "membrane"
 
@@ -134,6 +140,7 @@ def build_spec(values):
             key="pitch" if values["pitch"] is not None else None,
         )
     areal_density, material, thickness = _areal_density(values)
+    constants = values["material"]
     return MembraneSpec(
         shape=shape,
         areal_density=areal_density,
@@ -144,6 +151,9 @@ def build_spec(values):
         pitch_hz=values["pitch"],
         material=material,
         thickness=thickness,
+        youngs_modulus=None if constants is None else constants.youngs_modulus,
+        poisson_ratio=None if constants is None else constants.poisson_ratio,
+        tensile_strength=None if constants is None else constants.tensile_strength,
     )
 
 
@@ -411,8 +421,19 @@ def membrane_modes(spec, *, excitation_position, pickup_position, n_modes):
         "tension_solved": spec.tension is None,
         "wave_speed_m_s": speed,
     }
+    warnings = []
     if spec.thickness is None:
         del parameters["thickness_m"]
+    else:
+        stress = tension / spec.thickness
+        parameters["stress_pa"] = stress
+        if spec.tensile_strength:
+            parameters["tensile_strength_pa"] = spec.tensile_strength
+            parameters["stress_percent_of_strength"] = 100.0 * stress / spec.tensile_strength
+        warnings += stress_warnings(stress, spec.tensile_strength, "membrane")
+        note = _bending_note(spec, tension, speed, freq)
+        if note:
+            warnings.append(note)
     return ModeSet(
         resonator="membrane",
         frequency_hz=frozen_array(freq),
@@ -421,6 +442,32 @@ def membrane_modes(spec, *, excitation_position, pickup_position, n_modes):
         pickup_shape=frozen_array(pick),
         columns=columns,
         parameters=parameters,
+        warnings=tuple(warnings),
+    )
+
+
+#: Bending stiffness raises a mode by about (D k^2 / T) / 2 of its frequency;
+#: D k^2 / T = 0.01 is about 9 cents.
+BENDING_NOTE_RATIO = 0.01
+
+
+def _bending_note(spec, tension, speed, freq):
+    """A warning when the (unmodelled) bending stiffness would shift modes > ~9 cents.
+
+    For a membrane with bending stiffness D = E h^3 / (12 (1 - nu^2)),
+    sigma omega^2 = T k^2 + D k^4 (exact for a pinned rectangle, close for a
+    circle), so modes are raised by about D k^2 / (2 T) of their frequency.
+    """
+    if not spec.youngs_modulus or spec.poisson_ratio is None or len(freq) == 0:
+        return None
+    rigidity = spec.youngs_modulus * spec.thickness**3 / (12.0 * (1.0 - spec.poisson_ratio**2))
+    k = math.sqrt(BENDING_NOTE_RATIO * tension / rigidity)  # rad/m where D k^2 / T = 0.01
+    onset_hz = speed * k / (2.0 * math.pi)
+    if freq[-1] <= onset_hz:
+        return None
+    return (
+        f"bending stiffness of the {spec.thickness * 1e3:.3g} mm {spec.material} is not modelled: "
+        f"modes above about {onset_hz:.0f} Hz would sound more than 9 cents sharper on a real membrane"
     )
 
 

@@ -27,7 +27,7 @@ from scipy.optimize import brentq
 
 from ..modes import ModeSet, frozen_array
 from ..schema import Field
-from .common import SpecError, UnreachablePitch
+from .common import SAFE_STRESS_FRACTION, SpecError, UnreachablePitch, stress_warnings
 
 __all__ = [
     "FIELDS",
@@ -45,12 +45,6 @@ __all__ = [
     "SAFE_STRESS_FRACTION",
     "UnreachablePitch",
 ]
-
-#: Working stress above this fraction of the tensile strength gets a warning.
-#: Common practice (string makers commonly keep working tension well below
-#: breaking; ~60% is a frequently used ceiling), not a published limit.
-SAFE_STRESS_FRACTION = 0.60
-
 
 #: Patch keys of a string (besides ``type``).
 FIELDS = {
@@ -271,21 +265,7 @@ def string_modes(spec, *, excitation_position, pickup_position, n_modes):
         "tensile_strength_pa": strength,
         "stress_percent_of_strength": None if not strength else 100.0 * stress / strength,
     }
-    warnings = []
-    if strength:
-        fraction = stress / strength
-        if fraction >= 1.0:
-            warnings.append(
-                f"string stress {stress / 1e6:.0f} MPa is {100 * fraction:.0f}% of the tensile strength "
-                f"({strength / 1e6:.0f} MPa): this string would break; this is a preview, "
-                "defer to the string maker's data"
-            )
-        elif fraction > SAFE_STRESS_FRACTION:
-            warnings.append(
-                f"string stress {stress / 1e6:.0f} MPa is {100 * fraction:.0f}% of the tensile strength "
-                f"({strength / 1e6:.0f} MPa), above the {100 * SAFE_STRESS_FRACTION:.0f}% working ceiling "
-                "(common practice): risk of breaking; this is a preview, defer to the string maker's data"
-            )
+    warnings = stress_warnings(stress, strength, "string")
     return ModeSet(
         resonator="string",
         frequency_hz=frozen_array(freq),
