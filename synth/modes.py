@@ -18,6 +18,9 @@ import numpy as np
 
 __all__ = ["ModeSet", "PartialTable", "frozen_array", "table_to_dict", "table_to_text", "table_to_csv"]
 
+#: Shown under any stress figure: design figures are previews.
+PREVIEW_NOTE = "stress figures are previews: defer to the maker's data, local codes and qualified practice"
+
 #: |shape| below this fraction of the largest |shape| counts as a node.
 NODE_TOLERANCE = 1e-9
 
@@ -276,6 +279,8 @@ def table_to_text(table, *, max_rows=None):
     widths = [max([len(h)] + [len(r[i]) for r in rows]) for i, h in enumerate(headers)]
     lines = [f"{table.name} ({table.resonator}), fundamental {table.fundamental_hz:.3f} Hz, {len(table.frequency_hz)} modes"]
     lines += [_parameter_line(k, v) for k, v in data["parameters"].items()]
+    if "stress_pa" in data["parameters"]:
+        lines.append(f"  ({PREVIEW_NOTE})")
     lines.append("  ".join(h.rjust(w) if i != 1 and i < 7 else h.ljust(w) for i, (h, w) in enumerate(zip(headers, widths))).rstrip())
     for row in rows:
         lines.append("  ".join(c.rjust(w) if i != 1 and i < 7 else c.ljust(w) for i, (c, w) in enumerate(zip(row, widths))).rstrip())
