@@ -10,7 +10,14 @@ __version__ = "0.1.0"
 
 from .engine import render_modes
 from .errors import InputFileError, ModalError, PatchError, RenderError
-from .modes import ModeSet, PartialTable, table_to_csv, table_to_dict, table_to_json, table_to_text
+from .modes import (
+    ModeSet,
+    PartialTable,
+    table_to_csv,
+    table_to_dict,
+    table_to_json,
+    table_to_text,
+)
 from .patch import Patch, load_patch, patch_from_text, retune
 from .pipeline import mode_set, partial_table, render_patch
 

@@ -19,13 +19,28 @@ import soundfile
 
 from .errors import PatchError, RenderError
 
-__all__ = ["peak_dbfs", "normalise", "quantise", "write_audio", "atomic_output", "SUBTYPES", "FORMATS"]
+__all__ = [
+    "peak_dbfs",
+    "normalise",
+    "quantise",
+    "write_audio",
+    "atomic_output",
+    "check_output_file",
+    "check_output_path",
+    "make_output_folder",
+    "whole_sample_rate",
+    "SUBTYPES",
+    "FORMATS",
+    "COMMAND_LINE",
+]
 
 #: soundfile subtype per bit depth.
 SUBTYPES = {16: "PCM_16", 24: "PCM_24", 32: "FLOAT"}
 #: file suffix -> soundfile format, with the bit depths it can hold.
 FORMATS = {".wav": ("WAV", (16, 24, 32)), ".flac": ("FLAC", (16, 24))}
 DITHER_SEED = 0  # fixed, so a render writes the same bytes every time
+#: The ``file`` of errors about a command-line option (``command line: --output: ...``).
+COMMAND_LINE = "command line"
 
 
 def peak_dbfs(signal):
@@ -38,9 +53,7 @@ def _full_scale_limit(bit_depth):
     """Largest |sample| that survives conversion (and 16-bit dither) unclipped."""
     if bit_depth == 16:
         return (32767.0 - 1.0) / 32767.0
-    if bit_depth == 24:
-        return 1.0
-    return 1.0
+    return 1.0  # 24-bit rounds to the nearest step; 32-bit float has no ceiling at 1
 
 
 def normalise(signal, *, peak_db, bit_depth=24):
@@ -103,52 +116,150 @@ def quantise(signal, bit_depth, *, seed=DITHER_SEED):
     raise ValueError(f"bit_depth={bit_depth!r} must be one of 16, 24, 32")
 
 
-def check_output_path(path, bit_depth):
-    """Raise PatchError if `path` cannot take a render of `bit_depth`."""
+def _option_error(message, key):
+    """PatchError about the command-line option `key` (``command line: KEY: message``)."""
+    return PatchError(message, file=COMMAND_LINE, key=key)
+
+
+def _same_file(a, b):
+    """True if paths `a` and `b` name one file (links and ``..`` included)."""
+    try:
+        return os.path.samefile(a, b)
+    except OSError:  # one of them does not exist (yet)
+        return Path(a).resolve() == Path(b).resolve()
+
+
+def check_output_file(path, *, suffixes, inputs=(), key="--output", make_folder=False):
+    """Check that `path` can take an output file; raise PatchError naming `key` if not.
+
+    Parameters
+    ----------
+    path : str or Path
+    suffixes : sequence of str
+        Allowed suffixes, lower case with the dot (``(".csv",)``).
+    inputs : iterable of str, Path or None
+        Files this command reads (patch, song, map, spec); the output may not
+        be any of them.  None entries are skipped.
+    key : str
+        The option that named `path`, e.g. ``--output`` or ``--csv``.
+    make_folder : bool
+        The folder will be created before writing, so it need not exist yet.
+
+    Returns
+    -------
+    Path
+    """
+    path = Path(path)
+    if path.suffix.lower() not in suffixes:
+        raise _option_error(f"output must end in {' or '.join(suffixes)}, got {path.name!r}", key)
+    for source in inputs:
+        if source is not None and _same_file(path, source):
+            raise _option_error(f"{str(path)!r} is an input of this command; name another file", key)
+    if path.is_dir():
+        raise _option_error(f"{str(path)!r} is a folder; name a file inside it", key)
+    folder = path.parent
+    if folder.exists() and not folder.is_dir():
+        raise _option_error(f"{str(folder)!r} is not a folder", key)
+    if not make_folder and not folder.exists():
+        raise _option_error(f"output folder {str(folder)!r} does not exist", key)
+    return path
+
+
+def check_output_path(path, bit_depth, *, inputs=(), key="--output", make_folder=False):
+    """Raise PatchError if `path` cannot take a render of `bit_depth`; return the soundfile format.
+
+    `inputs`, `key` and `make_folder` are as in :func:`check_output_file`.
+    """
     path = Path(path)
     suffix = path.suffix.lower()
-    if suffix not in FORMATS:
-        raise PatchError(f"output must end in {' or '.join(FORMATS)}, got {path.name!r}", key="--output")
-    fmt, depths = FORMATS[suffix]
-    if bit_depth not in depths:
-        raise PatchError(f"{fmt} cannot hold {bit_depth}-bit samples (allowed: {', '.join(map(str, depths))})", key="--output")
-    if path.parent and not path.parent.exists():
-        raise PatchError(f"output folder {str(path.parent)!r} does not exist", key="--output")
-    return fmt
+    if suffix in FORMATS:
+        fmt, depths = FORMATS[suffix]
+        if bit_depth not in depths:
+            raise _option_error(f"{fmt} cannot hold {int(bit_depth)}-bit samples (allowed: {', '.join(map(str, depths))})", key)
+    check_output_file(path, suffixes=tuple(FORMATS), inputs=inputs, key=key, make_folder=make_folder)
+    return FORMATS[suffix][0]
+
+
+def make_output_folder(path):
+    """Create the folder of output file `path` (and its parents); RenderError if it cannot."""
+    folder = Path(path).parent
+    try:
+        folder.mkdir(parents=True, exist_ok=True)
+    except OSError as error:
+        raise RenderError(f"cannot create the output folder {str(folder)!r}: {error.strerror or error}") from None
+
+
+def whole_sample_rate(sample_rate):
+    """`sample_rate` as an int, or ValueError if it is not a positive whole number of Hz.
+
+    A WAV or FLAC header holds a whole number: truncating 44100.5 to 44100
+    would play the render at the wrong speed.
+    """
+    try:
+        whole = int(sample_rate)
+    except (TypeError, ValueError, OverflowError):
+        raise ValueError(f"sample_rate={sample_rate!r} must be a whole number of Hz") from None
+    if whole != sample_rate or whole <= 0:
+        raise ValueError(f"sample_rate={sample_rate!r} must be a whole number of Hz > 0")
+    return whole
 
 
 class atomic_output:
     """Context manager: yields a temporary path beside `path`, renamed on success.
 
     On any exception (Ctrl-C included) the temporary file is removed and
-    `path` is left untouched.
+    `path` is left untouched.  An OSError (no permission, a folder in the
+    way, a full disk) becomes a one-line error naming `path`: a PatchError
+    about option `key` (``command line: --output: ...``), or, with `key`
+    None, a RenderError.
     """
 
-    def __init__(self, path, suffix=None):
+    def __init__(self, path, suffix=None, *, key=None):
         self.path = Path(path)
         self.suffix = suffix if suffix is not None else self.path.suffix
+        self.key = key
+        self.tmp = None
+
+    def _error(self, error):
+        message = f"cannot write {str(self.path)!r}: {error.strerror or error}"
+        if self.key is None:
+            return RenderError(message)
+        return _option_error(message, self.key)
+
+    def _remove(self):
+        if self.tmp is not None:
+            try:
+                self.tmp.unlink()
+            except OSError:
+                pass
 
     def __enter__(self):
-        handle, name = tempfile.mkstemp(prefix=f".{self.path.stem}.", suffix=".part" + self.suffix, dir=self.path.parent or ".")
-        os.close(handle)
+        try:
+            handle, name = tempfile.mkstemp(prefix=f".{self.path.stem}.", suffix=".part" + self.suffix, dir=self.path.parent)
+            os.close(handle)
+        except OSError as error:
+            raise self._error(error) from None
         self.tmp = Path(name)
         return self.tmp
 
     def __exit__(self, kind, value, traceback):
         if kind is None:
-            umask = os.umask(0)
-            os.umask(umask)
-            os.chmod(self.tmp, 0o666 & ~umask)  # mkstemp makes 0600; give the usual mode
-            os.replace(self.tmp, self.path)
-        else:
             try:
-                self.tmp.unlink()
-            except FileNotFoundError:
-                pass
+                umask = os.umask(0)
+                os.umask(umask)
+                os.chmod(self.tmp, 0o666 & ~umask)  # mkstemp makes 0600; give the usual mode
+                os.replace(self.tmp, self.path)
+            except OSError as error:
+                self._remove()
+                raise self._error(error) from None
+            return False
+        self._remove()
+        if issubclass(kind, OSError):
+            raise self._error(value) from None  # e.g. the disk filled up while writing
         return False
 
 
-def write_audio(path, signal, *, sample_rate, bit_depth, seed=DITHER_SEED):
+def write_audio(path, signal, *, sample_rate, bit_depth, seed=DITHER_SEED, key=None):
     """Write `signal` (already normalised, |x| <= 1) atomically as WAV or FLAC.
 
     Parameters
@@ -156,11 +267,25 @@ def write_audio(path, signal, *, sample_rate, bit_depth, seed=DITHER_SEED):
     path : str or Path
         ``.wav`` or ``.flac``.
     signal : ndarray [shape=(n,) or (n, channels)], float
-    sample_rate : int, Hz
+    sample_rate : int > 0, Hz
+        A whole number (a float such as 44100.0 is fine).
     bit_depth : {16, 24, 32}
+    seed : int
+        Seed of the 16-bit TPDF dither.
+    key : str or None
+        The option that named `path`, for the error if it cannot be written
+        (see :class:`atomic_output`).
+
+    Raises
+    ------
+    ValueError
+        If `sample_rate` is not a whole number of Hz.
+    PatchError, RenderError
+        If `path` is refused or cannot be written; nothing is left behind.
     """
     fmt = check_output_path(path, bit_depth)
+    rate = whole_sample_rate(sample_rate)
     data = quantise(signal, bit_depth, seed=seed)
-    with atomic_output(path) as tmp:
-        soundfile.write(str(tmp), data, int(sample_rate), subtype=SUBTYPES[bit_depth], format=fmt)
+    with atomic_output(path, key=key) as tmp:
+        soundfile.write(str(tmp), data, rate, subtype=SUBTYPES[bit_depth], format=fmt)
     return Path(path)

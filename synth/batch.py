@@ -49,19 +49,17 @@ import numpy as np
 
 from .audio import SUBTYPES, atomic_output, normalise, peak_dbfs, quantise
 from .engine import render_modes
-from .executors import backend, default_workers
 from .errors import ModalError, PatchError, RenderError
+from .executors import backend, default_workers
+from .libindex import MANIFEST_NAME, index_texts, read_manifest
 from .library import (
-    MANIFEST_NAME,
     dither_seed,
     file_hash,
-    index_texts,
     library_hash,
     library_jobs,
     load_library_spec,
     loudness_lufs,
     partials_dict,
-    read_manifest,
 )
 from .pipeline import partial_table, render_patch
 

@@ -1,16 +1,34 @@
 """The ``synth`` command line.
 
-Every user error is one line on stderr (``synth: error: FILE:LINE: KEY: ...``)
-and exit status 2, with nothing written.
+Every user error is one line on stderr (``synth: error: FILE:LINE: KEY: ...``;
+for an option, ``synth: error: command line: --option: ...``) and exit status
+2, with nothing written.  A request whose numbers the physics cannot handle
+(an overflow, a singular matrix, memory) is one line and status 2 too.  When
+the reader of stdout goes away (``synth modes P --json | head``) the command
+stops quietly with status 141 (128 + SIGPIPE, what a shell reports for a
+program killed by a broken pipe).
 """
 from __future__ import annotations
 
 import argparse
+import os
 import sys
 from pathlib import Path
 
+import numpy as np
+
 from . import __version__
-from .audio import atomic_output, check_output_path, normalise, peak_dbfs, write_audio
+from .audio import (
+    COMMAND_LINE,
+    atomic_output,
+    check_output_file,
+    check_output_path,
+    make_output_folder,
+    normalise,
+    peak_dbfs,
+    whole_sample_rate,
+    write_audio,
+)
 from .errors import ModalError, PatchError
 from .modes import table_to_csv, table_to_json, table_to_text
 from .patch import load_patch, patch_from_mapping
@@ -22,6 +40,13 @@ LISTENING_CAUTION = (
     "listening caution: start playback quietly and raise it slowly; long exposure to loud sound harms hearing"
 )
 DEFAULT_OUTPUT_DIR = Path("renders")
+#: Exit status after the reader of stdout went away: 128 + SIGPIPE (13), as a shell reports.
+BROKEN_PIPE_STATUS = 141
+#: Numeric failures deep in the physics that extreme (but finite) inputs can cause.
+#: ArithmeticError covers OverflowError, ZeroDivisionError and FloatingPointError.
+NUMERIC_ERRORS = (ArithmeticError, np.linalg.LinAlgError, MemoryError, RecursionError)
+NUMERIC_HINT = "check that sizes and frequencies are physically sensible"
+SHORT_MESSAGE_CHARS = 80  # of a numeric failure's own message
 
 
 def _overrides(args):
@@ -39,19 +64,35 @@ def _overrides(args):
     return overrides
 
 
-def _warn(messages, quiet=False):
+def _warn(messages):
     for message in messages:
         print(f"synth: warning: {message}", file=sys.stderr)
 
 
+def _check_rows(rows):
+    if rows is not None and rows < 1:
+        raise PatchError(f"must be a whole number >= 1, got {rows}", file=COMMAND_LINE, key="--rows")
+
+
+def _check_sample_rate(patch, option_given):
+    """PatchError unless the patch renders at a whole number of Hz (a WAV header holds nothing else)."""
+    try:
+        whole_sample_rate(patch.render.sample_rate)
+    except ValueError:
+        message = f"must be a whole number of Hz, got {patch.render.sample_rate:g}"
+        if option_given:
+            raise PatchError(message, file=COMMAND_LINE, key="--sample-rate") from None
+        raise patch.error("render.sample_rate", message) from None
+
+
 def cmd_modes(args):
+    _check_rows(args.rows)
+    if args.csv:
+        check_output_file(args.csv, suffixes=(".csv",), inputs=(args.patch,), key="--csv")
     patch = load_patch(args.patch, overrides=_overrides(args))
     table = partial_table(patch)
     if args.csv:
-        csv_path = Path(args.csv)
-        if not csv_path.parent.exists():
-            raise PatchError(f"folder {str(csv_path.parent)!r} does not exist", key="--csv")
-        with atomic_output(csv_path) as tmp:
+        with atomic_output(Path(args.csv), key="--csv") as tmp:
             tmp.write_text(table_to_csv(table), encoding="utf-8")
     if args.json:
         print(table_to_json(table))
@@ -63,22 +104,22 @@ def cmd_modes(args):
 
 
 def cmd_render(args):
+    _check_rows(args.rows)
     patch = load_patch(args.patch, overrides=_overrides(args))
-    if args.output:
-        out = Path(args.output)
-    else:
-        out = DEFAULT_OUTPUT_DIR / f"{patch.name}.wav"
-    if args.output:
-        check_output_path(out, patch.render.bit_depth)
+    bits = patch.render.bit_depth
+    _check_sample_rate(patch, args.sample_rate is not None)
+    out = Path(args.output) if args.output else DEFAULT_OUTPUT_DIR / f"{patch.name}.wav"
+    check_output_path(out, bits, inputs=(args.patch,), make_folder=not args.output)
     signal, table = render_patch(patch)
-    scaled, gain_db = normalise(signal, peak_db=patch.render.peak_db, bit_depth=patch.render.bit_depth)
-    out.parent.mkdir(parents=True, exist_ok=True)
-    write_audio(out, scaled, sample_rate=patch.render.sample_rate, bit_depth=patch.render.bit_depth)
+    scaled, _ = normalise(signal, peak_db=patch.render.peak_db, bit_depth=bits)
+    if not args.output:
+        make_output_folder(out)
+    write_audio(out, scaled, sample_rate=patch.render.sample_rate, bit_depth=bits, key="--output" if args.output else None)
     if not args.quiet:
         print(table_to_text(table, max_rows=args.rows))
     print(
         f"wrote {out} ({patch.render.duration:g} s, {patch.render.sample_rate:g} Hz, "
-        f"{patch.render.bit_depth}-bit, peak {peak_dbfs(scaled):.2f} dBFS)"
+        f"{int(bits)}-bit, peak {peak_dbfs(scaled):.2f} dBFS)"
     )
     if table.warnings:
         _warn(table.warnings)
@@ -107,7 +148,7 @@ def cmd_midi(args):
     notes = f"{result.n_notes} note{'s' * (result.n_notes != 1)}"
     print(
         f"wrote {out} ({notes}, {result.duration_s:.2f} s, {result.sample_rate:g} Hz, "
-        f"{result.bit_depth}-bit {layout}, peak {result.peak_dbfs:.2f} dBFS)"
+        f"{int(result.bit_depth)}-bit {layout}, peak {result.peak_dbfs:.2f} dBFS)"
     )
     _warn(result.warnings)
     if not args.quiet:
@@ -130,17 +171,21 @@ def cmd_batch(args):
 
 
 def cmd_tune_bar(args):
-    from .tuning import MAX_POINTS, MIN_POINTS, TuningError, parse_ratios, profile_text, tune_undercut, tuned_patch_text, tuning_report
+    from .tuning import (
+        MAX_POINTS,
+        MIN_POINTS,
+        TuningError,
+        parse_ratios,
+        profile_text,
+        tune_undercut,
+        tuned_patch_text,
+        tuning_report,
+    )
     from .yamlio import load_yaml_file
 
     out = Path(args.output) if args.output else None
     if out is not None:
-        if out.suffix.lower() not in (".yaml", ".yml"):
-            raise PatchError(f"output must end in .yaml or .yml, got {out.name!r}", key="--output")
-        if not out.parent.exists():
-            raise PatchError(f"output folder {str(out.parent)!r} does not exist", key="--output")
-        if out.exists() and out.resolve() == Path(args.patch).resolve():
-            raise PatchError("would overwrite the patch being tuned; name another file", key="--output")
+        check_output_file(out, suffixes=(".yaml", ".yml"), inputs=(args.patch,), key="--output")
     if not MIN_POINTS <= args.points <= MAX_POINTS:
         raise PatchError(f"must be {MIN_POINTS}..{MAX_POINTS}, got {args.points}", file="command line", key="--points")
     try:
@@ -163,7 +208,7 @@ def cmd_tune_bar(args):
         for value in profile_text(tuning.spec.profile):
             print(f"  - {value}")
         return 0
-    with atomic_output(out) as tmp:
+    with atomic_output(out, key="--output") as tmp:
         tmp.write_text(tuned_patch_text(mapping, tuning, source=Path(args.patch).name), encoding="utf-8")
     print(f"wrote {out}")
     return 0
@@ -246,6 +291,24 @@ def _number_or_text(value):
         return value
 
 
+def _silence_stdout():
+    """Point stdout at the null device, so the exit flush of a closed pipe cannot fail again."""
+    try:
+        devnull = os.open(os.devnull, os.O_WRONLY)
+        os.dup2(devnull, sys.stdout.fileno())
+        os.close(devnull)
+    except (OSError, ValueError):  # stdout is not a real file (e.g. captured in tests)
+        pass
+
+
+def _short(error):
+    """``TypeName: first line of the message``, cut to :data:`SHORT_MESSAGE_CHARS`."""
+    text = str(error).strip().splitlines()[0] if str(error).strip() else ""
+    if len(text) > SHORT_MESSAGE_CHARS:
+        text = text[: SHORT_MESSAGE_CHARS - 3] + "..."
+    return f"{type(error).__name__}: {text}" if text else type(error).__name__
+
+
 def main(argv=None):
     parser = build_parser()
     args = parser.parse_args(argv)
@@ -253,9 +316,19 @@ def main(argv=None):
         if hasattr(args, attr):
             setattr(args, attr, _number_or_text(getattr(args, attr)))
     try:
-        return args.func(args)
+        status = args.func(args)
+        sys.stdout.flush()  # a closed pipe shows here, not at interpreter exit
+        return status
     except ModalError as error:
+        if isinstance(error, PatchError) and error.file is None and (error.key or "").startswith("--"):
+            error.file = COMMAND_LINE  # every option error reads "command line: --option: ..."
         print(f"synth: error: {error}", file=sys.stderr)
+        return 2
+    except BrokenPipeError:
+        _silence_stdout()
+        return BROKEN_PIPE_STATUS
+    except NUMERIC_ERRORS as error:
+        print(f"synth: error: cannot compute this request ({_short(error)}): {NUMERIC_HINT}", file=sys.stderr)
         return 2
     except KeyboardInterrupt:
         print("synth: interrupted; nothing half-written was left behind", file=sys.stderr)

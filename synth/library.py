@@ -1,10 +1,12 @@
-"""Sample libraries: the spec, its jobs, file names, manifest, SFZ map and loudness.
+"""Sample libraries: the spec, its jobs, file names, hashes and loudness.
 
 A library spec (YAML) names a patch and the notes, velocities and round robins
 to render; :func:`load_library_spec` checks it (every error names file, line
 and key) and :func:`library_jobs` turns it into one :class:`Job` per
 note x velocity x round robin, each carrying its voiced patch.  Execution lives
 in :mod:`synth.batch`; this module does no rendering and writes no files.
+The manifest and SFZ map are built in :mod:`synth.libindex` (its names are
+re-exported here).
 
 Spec keys
 ---------
@@ -39,8 +41,8 @@ from __future__ import annotations
 import dataclasses
 import hashlib
 import json
-import os
 import math
+import os
 import re
 from dataclasses import dataclass
 from pathlib import Path
@@ -49,6 +51,13 @@ import numpy as np
 
 from . import __version__
 from .errors import PatchError
+from .libindex import (
+    FORMAT_VERSION,
+    MIDI_HIGH,
+    MIDI_LOW,
+    VELOCITY_HIGH,
+    VELOCITY_LOW,
+)
 from .modes import table_to_dict
 from .patch import load_patch
 from .schema import Field, Section, read_section
@@ -70,33 +79,14 @@ __all__ = [
     "dither_seed",
     "loudness_lufs",
     "partials_dict",
-    "key_ranges",
-    "velocity_ranges",
-    "sfz_text",
-    "read_manifest",
-    "manifest_text",
-    "index_texts",
-    "MANIFEST_NAME",
-    "MANIFEST_FORMAT",
-    "FORMAT_VERSION",
-    "LOUDNESS_METER",
 ]
 
-MANIFEST_NAME = "manifest.json"
-MANIFEST_FORMAT = "synth-library"
-FORMAT_VERSION = 1  # bump when file naming, hashing or the manifest layout changes
 MAX_ROUND_ROBIN = 99  # round robins per note x velocity (two digits in the file name)
 MAX_JOBS = 100_000  # files per library: far beyond any sampler's practical size
 MAX_POSITION_JITTER = 0.5  # fraction of the length
 MAX_DETUNE_CENTS = 100.0  # cents: one semitone
-MIDI_LOW, MIDI_HIGH = 0, 127  # MIDI note numbers (MIDI 1.0)
-VELOCITY_LOW, VELOCITY_HIGH = 1, 127  # MIDI note-on velocities (0 means note-off)
 DITHER_STREAM = 0x5EED  # first word of every per-file dither seed
 LOUDNESS_BLOCK_S = 0.4  # s, gating block of ITU-R BS.1770 integrated loudness
-LOUDNESS_METER = (
-    "ITU-R BS.1770-4 gated integrated loudness, pyloudnorm Meter(filter_class='DeMan'): "
-    "the Recommendation's K-weighting coefficients at 48 kHz, redesigned for other rates"
-)
 _SAFE_FILE = re.compile(r"^[A-Za-z0-9][A-Za-z0-9_-]*_\d{3}_[A-Gs0-9-]+_v\d{3}_rr\d{2}\.wav$")
 
 _SPEC_FIELDS = {
@@ -208,7 +198,11 @@ def load_library_spec(path, *, output=None):
     top = Section(mapping, file=file)
     values = read_section(top, _SPEC_FIELDS)
     base = Path(path).parent
+    if not str(values["patch"]).strip():
+        raise top.error("patch", "must name a patch file (YAML), relative to the spec file")
     patch_path = base / values["patch"]
+    if patch_path.is_dir():
+        raise top.error("patch", f"{str(patch_path)!r} is a folder, not a patch file")
     if not patch_path.is_file():
         raise top.error("patch", f"no patch file {str(patch_path)!r} (paths are relative to the spec file)")
     patch = load_patch(patch_path)
@@ -226,6 +220,9 @@ def load_library_spec(path, *, output=None):
         if folder.exists() and not folder.is_dir():
             raise PatchError(f"{output!r} exists and is not a folder", key="--output")
     elif values["output"] is not None:
+        if not values["output"].strip():
+            raise top.error("output", "is empty: name a folder (relative to the spec file), or leave the key out "
+                                      "for renders/<name> in the working folder")
         folder = Path(os.path.normpath(base / values["output"]))
         if folder.exists() and not folder.is_dir():
             raise top.error("output", f"{str(folder)!r} exists and is not a folder")
@@ -498,150 +495,3 @@ def partials_dict(table):
     data = table_to_dict(table)
     data["modes"] = [{k: v for k, v in mode.items() if not isinstance(v, list)} for mode in data["modes"]]
     return data
-
-
-# ---------------------------------------------------------------------------
-# SFZ mapping
-
-
-def key_ranges(keys):
-    """{key: (lokey, hikey)}: each sample covers the keys nearer to it than to a neighbour.
-
-    A key midway between two samples goes to the lower one; the lowest sample
-    reaches as far down as it reaches up, the highest as far up as it reaches
-    down (within MIDI 0..127).
-    """
-    keys = sorted(set(keys))
-    ranges = {}
-    for i, key in enumerate(keys):
-        low = (keys[i - 1] + key) // 2 + 1 if i > 0 else None
-        high = (key + keys[i + 1]) // 2 if i < len(keys) - 1 else None
-        ranges[key] = [low, high]
-    for key, span in ranges.items():
-        low, high = span
-        if low is None:
-            low = max(MIDI_LOW, key - ((high - key) if high is not None else 0))
-        if high is None:
-            high = min(MIDI_HIGH, key + (key - low))
-        ranges[key] = (low, high)
-    return ranges
-
-
-def velocity_ranges(velocities):
-    """{velocity: (lovel, hivel)}: a layer plays up to its own velocity; the top one up to 127."""
-    velocities = sorted(set(velocities))
-    ranges = {}
-    for i, velocity in enumerate(velocities):
-        low = VELOCITY_LOW if i == 0 else velocities[i - 1] + 1
-        high = VELOCITY_HIGH if i == len(velocities) - 1 else velocity
-        ranges[velocity] = (low, high)
-    return ranges
-
-
-def sfz_text(name, entries, *, comment_lines=()):
-    """An SFZ file mapping `entries` (manifest entries) onto keys and velocities.
-
-    One ``<group>`` per note x velocity with ``lokey hikey pitch_keycenter
-    lovel hivel seq_length``, one ``<region>`` per round robin with
-    ``sample`` and ``seq_position``.  ``amp_veltrack=0``: the samples already
-    carry their dynamics, so the sampler must not scale them by velocity again.
-    """
-    groups = {}
-    for entry in sorted(entries, key=lambda e: (e["midi"], e["velocity"], e["round_robin"])):
-        groups.setdefault((entry["midi"], entry["velocity"]), []).append(entry)
-    keys = key_ranges([midi for midi, _ in groups])
-    layers = {}
-    for midi, velocity in groups:
-        layers.setdefault(midi, []).append(velocity)
-    lines = [f"// {name}: sample map written by synth {__version__}"]
-    lines += [f"// {line}" for line in comment_lines]
-    lines += ["<global>", "amp_veltrack=0", ""]
-    for (midi, velocity), members in groups.items():
-        lokey, hikey = keys[midi]
-        lovel, hivel = velocity_ranges(layers[midi])[velocity]
-        lines.append(
-            f"<group> lokey={lokey} hikey={hikey} pitch_keycenter={midi} lovel={lovel} hivel={hivel} "
-            f"seq_length={len(members)}"
-        )
-        for position, entry in enumerate(members, start=1):
-            lines.append(f"<region> sample={entry['file']} seq_position={position}")
-        lines.append("")
-    return "\n".join(lines)
-
-
-# ---------------------------------------------------------------------------
-# The manifest file
-
-
-def read_manifest(folder):
-    """The manifest in `folder` as a dict, or None if absent, unreadable or of another format."""
-    try:
-        data = json.loads((Path(folder) / MANIFEST_NAME).read_text(encoding="utf-8"))
-    except (OSError, ValueError):
-        return None
-    if not isinstance(data, dict) or data.get("format") != MANIFEST_FORMAT or data.get("format_version") != FORMAT_VERSION:
-        return None
-    if not isinstance(data.get("library"), dict) or not isinstance(data.get("files"), list):
-        return None
-    return data
-
-
-def manifest_text(manifest):
-    """JSON text of `manifest`: the header indented, then one line per file (it stays small)."""
-    head = {key: value for key, value in manifest.items() if key != "files"}
-    text = json.dumps(head, indent=1, allow_nan=False)
-    files = ",\n".join("  " + json.dumps(entry, allow_nan=False) for entry in manifest["files"])
-    return text[:-2] + ',\n "files": [\n' + files + ("\n" if files else "") + " ]\n}\n"
-
-
-def index_texts(spec, jobs, entries, failed, *, lib_hash, gain, basis):
-    """(manifest JSON text, SFZ text) of a library.
-
-    Parameters
-    ----------
-    spec : LibrarySpec
-    jobs : list of Job
-    entries : dict of job index -> manifest entry (files on disk)
-    failed : dict of job index -> error message
-    lib_hash : str
-        :func:`library_hash` of `jobs`.
-    gain : float or None
-        The library's one gain (linear).
-    basis : dict or None
-        How the gain was decided.
-    """
-    render = spec.patch.render
-    files = [entries[i] for i in sorted(entries)]
-    current = [entry for entry in files if entry["up_to_date"]]
-    gain_db = None if not gain else 20.0 * math.log10(gain)
-    library = {
-        "name": spec.name,
-        "spec": Path(spec.source).name,
-        "patch": spec.patch_file,
-        "patch_name": spec.patch.name,
-        "notes": [text for text, _ in spec.notes],
-        "velocities": list(spec.velocities),
-        "round_robin": spec.round_robin,
-        "variation": dataclasses.asdict(spec.variation),
-        "sample_rate": render.sample_rate,
-        "bit_depth": render.bit_depth,
-        "duration_s": render.duration,
-        "peak_db": render.peak_db,
-        "gain": gain,
-        "gain_db": gain_db,
-        "gain_basis": basis,
-        "hash": lib_hash,
-        "loudness_meter": LOUDNESS_METER,
-        "n_files": len(jobs),
-        "complete": len(current) == len(jobs),
-        "failed": [{"file": jobs[i].file, "note": jobs[i].note, "velocity": jobs[i].velocity,
-                    "round_robin": jobs[i].round_robin, "error": message} for i, message in sorted(failed.items())],
-    }
-    manifest = {"format": MANIFEST_FORMAT, "format_version": FORMAT_VERSION, "synth_version": __version__,
-                "library": library, "files": files}
-    comments = (
-        f"{len(current)} samples of patch {spec.patch.name}; one gain for the whole library"
-        + (f" ({gain_db:+.2f} dB)" if gain_db is not None else "") + ", so velocity layers keep their dynamics",
-        "listening caution: start playback quietly; long exposure to loud sound harms hearing",
-    )
-    return manifest_text(manifest), sfz_text(spec.name, current, comment_lines=comments) + "\n"

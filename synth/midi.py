@@ -63,13 +63,20 @@ from pathlib import Path
 import numpy as np
 from tqdm import tqdm
 
-from .audio import check_output_path
+from .audio import check_output_path, make_output_folder, whole_sample_rate
 from .errors import InputFileError, PatchError, RenderError
 from .midifile import MidiSong, TempoMap, read_midi, tempo_map
 from .patch import _RENDER_FIELDS, MEMORY_LIMIT_BYTES, load_patch
 from .schema import Field, Section, convert, read_section
 from .units import A4_HZ, midi_to_note
-from .voices import VoicingCache, pan_gains, quantise_bends, render_voice, voice_end, write_song
+from .voices import (
+    VoicingCache,
+    pan_gains,
+    quantise_bends,
+    render_voice,
+    voice_end,
+    write_song,
+)
 from .yamlio import load_yaml_file
 
 __all__ = [
@@ -302,7 +309,7 @@ class ChannelMap:
 
 _MAP_TOP = {"channels": Field("any"), "tracks": Field("any"), "default": Field("any"), "render": Field("any")}
 _ENTRY_FIELDS = {
-    "patch": Field("str", required=True),
+    "patch": Field("str", required=True, takes="a patch file (YAML), relative to the map file"),
     "gain": Field("level", default=0.0, low=-120.0, high=24.0),
     "pan": Field("number", low=-1.0, high=1.0, nullable=True),
 }
@@ -314,8 +321,12 @@ def _entry(section, key, folder):
         raise section.error(key, "must be a mapping with patch (a patch file), optional gain (dB) and pan (-1..1)")
     child = section.child(key)
     values = read_section(child, _ENTRY_FIELDS)
+    if not values["patch"].strip():
+        raise child.error("patch", "is empty: name a patch file (YAML), relative to the map file")
     path = Path(values["patch"])
     path = path if path.is_absolute() else folder / path
+    if path.is_dir():
+        raise child.error("patch", f"{str(path)!r} is a folder, not a file: name the patch file (YAML) inside it")
     if not path.is_file():
         raise child.error("patch", f"patch file {str(path)!r} not found (paths are relative to the map file)")
     return MapEntry(path, values["gain"], values["pan"])
@@ -440,6 +451,19 @@ def _assign(performance, song, chmap, order):
     return assigned
 
 
+def _check_sample_rate(rate, option_given, source):
+    """PatchError unless `rate` is a whole number of Hz (all a WAV header holds), naming where it came from."""
+    try:
+        whole_sample_rate(rate)
+    except ValueError:
+        message = f"must be a whole number of Hz, got {rate:g}"
+        if option_given:
+            raise PatchError(message, file="command line", key="--sample-rate") from None
+        if isinstance(source, ChannelMap):
+            raise PatchError(message, file=source.source, key="render.sample_rate") from None
+        raise source.error("render.sample_rate", message) from None
+
+
 def _note_context(note, seconds):
     return f"note {midi_to_note(note.key)} (key {note.key}, velocity {note.velocity}) on channel {note.channel + 1} at {seconds:.3f} s"
 
@@ -481,8 +505,9 @@ def render_midi(song_path, *, output, patch=None, map_file=None, a4_hz=None, sam
     song = read_midi(song_path)
     chmap, order, patches, settings = _setup(patch, map_file, sample_rate, bit_depth)
     rate, bits, output = settings["sample_rate"], settings["bit_depth"], Path(output)
-    if not make_folder:
-        check_output_path(output, bits)
+    inputs = (song_path, patch, map_file, *order)  # every file read: the output may be none of them
+    check_output_path(output, bits, inputs=inputs, make_folder=make_folder)
+    _check_sample_rate(rate, sample_rate is not None, chmap if map_file is not None else patches[0])
     performance = perform(song, sample_rate=rate)
     if not performance.notes:
         raise InputFileError(f"no notes to play ({len(song.track_names)} track(s), {len(song.events)} "
@@ -505,8 +530,9 @@ def render_midi(song_path, *, output, patch=None, map_file=None, a4_hz=None, sam
     buffer = np.zeros((n_out, 2) if stereo else n_out, np.float32)
     _mix(buffer, performance, assigned, voiced, cache.patches, bar)
     if make_folder:
-        output.parent.mkdir(parents=True, exist_ok=True)
-    gain_db, peak_dbfs = write_song(output, buffer, sample_rate=rate, bit_depth=bits, peak_db=settings["peak_db"])
+        make_output_folder(output)
+    gain_db, peak_dbfs = write_song(output, buffer, sample_rate=rate, bit_depth=bits, peak_db=settings["peak_db"],
+                                    key=None if make_folder else "--output")
     warnings = list(performance.warnings) + _tone_warnings(cache)
     return MidiRender(output, len(performance.notes), n_out / rate, rate, bits, n_channels, peak_dbfs, gain_db,
                       cache.solves, tuple(warnings))

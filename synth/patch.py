@@ -13,8 +13,15 @@ from dataclasses import dataclass, field, replace
 from .errors import PatchError
 from .excitation import EXCITATIONS
 from .materials import MATERIALS, Material
-from .resonators import RESONATOR_TYPES, SpecError, UnreachablePitch, resonator_module, retune_spec
+from .resonators import (
+    RESONATOR_TYPES,
+    SpecError,
+    UnreachablePitch,
+    resonator_module,
+    retune_spec,
+)
 from .schema import Field, Section, check_keys, convert, read_section
+from .units import short_repr
 from .yamlio import LineDict, load_yaml_file, load_yaml_text
 
 __all__ = [
@@ -28,12 +35,22 @@ __all__ = [
     "patch_from_mapping",
     "retune",
     "MAX_MODES",
+    "MIN_SAMPLE_RATE",
+    "MAX_SAMPLE_RATE",
+    "MIN_DURATION_S",
     "MEMORY_LIMIT_BYTES",
     "estimate_render_bytes",
 ]
 
 #: Largest mode count a patch may ask for.
 MAX_MODES = 20000
+#: Sample rates a patch may ask for (Hz): 1 kHz .. 768 kHz, a whole number of Hz
+#: (a WAV header holds nothing else); 768 kHz is the highest rate common
+#: audio interfaces offer (common practice).
+MIN_SAMPLE_RATE = 1000
+MAX_SAMPLE_RATE = 768000
+#: Shortest render (s): anything shorter is an empty file, not a sound.
+MIN_DURATION_S = 1e-3
 #: Renders estimated to need more memory than this are refused (a workstation's
 #: memory; common practice for a desktop machine, not a measured limit).
 MEMORY_LIMIT_BYTES = 16 * 2**30
@@ -57,6 +74,23 @@ class Point:
 
 @dataclass(frozen=True)
 class Excitation:
+    """How the object is set vibrating (patch section ``excitation:``).
+
+    Attributes
+    ----------
+    kind : {"pluck", "strike", "impulse"}
+        Patch key ``type``.
+    position : Point or None
+        Where it is excited, in the resonator's position style; None where the
+        resonator takes no positions.
+    contact_time : float >= 0, s
+        How long a strike touches the object (0..1 s); it filters the high
+        modes.  Default 1 ms.
+    strength : float > 0, dimensionless
+        Scale of every amplitude (at most 1e6); matters only with
+        ``render.peak_db: null``.  Default 1.
+    """
+
     kind: str = "pluck"
     position: Point | None = None
     contact_time: float = 1e-3  # s
@@ -65,11 +99,34 @@ class Excitation:
 
 @dataclass(frozen=True)
 class Pickup:
+    """Where the sound is taken from (patch section ``pickup:``).
+
+    Attributes
+    ----------
+    position : Point or None
+        In the resonator's position style; None weights every mode 1 (a
+        listener who hears the whole object).
+    """
+
     position: Point | None = None  # None: every mode weighted 1
 
 
 @dataclass(frozen=True)
 class Damping:
+    """How fast the partials decay (patch section ``damping:``).
+
+    Attributes
+    ----------
+    t60 : float > 0, s
+        Time to decay 60 dB at the fundamental (at most 3600 s).  Default 3 s.
+    t60_high : float > 0 or None, s
+        T60 at `high_frequency`, at most `t60`; None gives every partial `t60`.
+    high_frequency : float > 0, Hz
+        Frequency where `t60_high` holds; above the fundamental.  Default 4 kHz.
+    release_t60 : float > 0, s
+        T60 after a MIDI note-off (at most 3600 s).  Default 0.15 s.
+    """
+
     t60: float = 3.0  # s, at the fundamental
     t60_high: float | None = None  # s, at high_frequency
     high_frequency: float = 4000.0  # Hz
@@ -78,8 +135,27 @@ class Damping:
 
 @dataclass(frozen=True)
 class RenderSettings:
+    """How the patch is rendered (patch section ``render:``).
+
+    Attributes
+    ----------
+    duration : float, s
+        Length of the output, :data:`MIN_DURATION_S` (1 ms) or more.  Default 3 s.
+    sample_rate : int, Hz
+        A whole number of Hz, :data:`MIN_SAMPLE_RATE` .. :data:`MAX_SAMPLE_RATE`.
+        Default 48000.
+    bit_depth : {16, 24, 32}
+        Bits per sample of the output (32: float).  Default 24.
+    peak_db : float or None, dBFS
+        Peak level the render is normalised to (-120..0); None keeps the
+        absolute scale.  Default -1.
+    max_modes : int
+        Modes computed (1 .. :data:`MAX_MODES`), before those at or above
+        Nyquist are dropped.  Default 256.
+    """
+
     duration: float = 3.0  # s
-    sample_rate: float = 48000.0  # Hz
+    sample_rate: int = 48000  # Hz
     bit_depth: int = 24
     peak_db: float | None = -1.0  # dBFS; None keeps the absolute scale
     max_modes: int = 256
@@ -103,9 +179,15 @@ class Patch:
         return PatchError(message, file=self.source, line=self.lines.get(key), key=key)
 
 
+_RESONATOR_TAKES = f"a mapping with type ({', '.join(RESONATOR_TYPES)}) and that object's keys"
+_MATERIAL_TAKES = (
+    f"a material name ({', '.join(sorted(MATERIALS))}) or a mapping of density, youngs_modulus, "
+    "poisson_ratio, tensile_strength"
+)
+
 _TOP = {
     "name": Field("slug", required=True),
-    "resonator": Field("any", required=True),
+    "resonator": Field("any", required=True, takes=_RESONATOR_TAKES),
     "excitation": Field("any"),
     "pickup": Field("any"),
     "damping": Field("any"),
@@ -114,7 +196,7 @@ _TOP = {
 
 _MATERIAL_FIELDS = {
     "density": Field("density", required=True, positive=True),
-    "youngs_modulus": Field("pressure", required=True, low=0.0),
+    "youngs_modulus": Field("pressure", required=True, low=0.0),  # 0: an ideal string, no stiffness
     "poisson_ratio": Field("number", low=-1.0, high=0.5, default=0.3),
     "tensile_strength": Field("pressure", positive=True, nullable=True),
 }
@@ -125,7 +207,7 @@ _EXCITATION_FIELDS = {
     "type": Field("choice", default="pluck", choices=EXCITATIONS),
     "position": Field("any"),
     "contact_time": Field("time", default=1e-3, low=0.0, high=1.0),
-    "strength": Field("number", default=1.0, low=0.0, high=1e6),
+    "strength": Field("number", default=1.0, positive=True, high=1e6),
 }
 
 _DAMPING_FIELDS = {
@@ -136,8 +218,8 @@ _DAMPING_FIELDS = {
 }
 
 _RENDER_FIELDS = {
-    "duration": Field("time", default=3.0, positive=True),
-    "sample_rate": Field("frequency", default=48000.0, low=1000.0, high=768000.0),
+    "duration": Field("time", default=3.0, positive=True, low=MIN_DURATION_S),
+    "sample_rate": Field("frequency", default=48000, low=MIN_SAMPLE_RATE, high=MAX_SAMPLE_RATE, whole=True),
     "bit_depth": Field("choice", default=24, choices=(16, 24, 32)),
     "peak_db": Field("level", default=-1.0, nullable=True, high=0.0, low=-120.0),
     "max_modes": Field("int", default=256, low=1, high=MAX_MODES),
@@ -151,12 +233,12 @@ def material_from(section, key="material"):
         if value not in MATERIALS:
             close = difflib.get_close_matches(value, list(MATERIALS), n=1)
             hint = f"; did you mean {close[0]!r}?" if close else ""
-            raise section.error(key, f"unknown material {value!r}{hint} (known: {', '.join(sorted(MATERIALS))}; or give a mapping of density, youngs_modulus, poisson_ratio, tensile_strength)")
+            raise section.error(key, f"unknown material {short_repr(value)}{hint} (known: {', '.join(sorted(MATERIALS))}; or give a mapping of density, youngs_modulus, poisson_ratio, tensile_strength)")
         return MATERIALS[value]
     if isinstance(value, dict):
         values = read_section(section.child(key), _MATERIAL_FIELDS)
         return Material("custom", values["density"], values["youngs_modulus"], values["poisson_ratio"], values["tensile_strength"], source="patch")
-    raise section.error(key, f"must be a material name ({', '.join(sorted(MATERIALS))}) or a mapping of constants")
+    raise section.error(key, f"must be a material name ({', '.join(sorted(MATERIALS))}) or a mapping of constants, got {short_repr(value)}")
 
 
 def _position(section, key, style, default):
@@ -169,11 +251,11 @@ def _position(section, key, style, default):
             return Point("fraction", (convert(_POSITION_1D, value),))
         if style == "xy":
             if not isinstance(value, list) or len(value) != 2:
-                raise ValueError(f"must be [x, y], two fractions of the width and height (0..1), got {value!r}")
+                raise ValueError(f"must be [x, y], two fractions of the width and height (0..1), got {short_repr(value)}")
             return Point("xy", tuple(convert(_POSITION_1D, v) for v in value))
         if style == "polar":
             if not isinstance(value, dict):
-                raise ValueError(f"must be {{radius: fraction 0..1, angle: degrees}}, got {value!r}")
+                raise ValueError(f"must be {{radius: fraction 0..1, angle: degrees}}, got {short_repr(value)}")
             polar = Section(value, file=section.file, path=section.key(key))
             values = read_section(polar, _POLAR_FIELDS)
             return Point("polar", (values["radius"], values["angle"]))
@@ -213,6 +295,8 @@ def _build_resonator(resonator):
     except ImportError:
         raise resonator.error("type", f"resonator type {kind!r} is not available in this version") from None
     fields = {"type": Field("choice", required=True, choices=RESONATOR_TYPES), **module.FIELDS}
+    if "material" in fields and not fields["material"].takes:
+        fields["material"] = replace(fields["material"], takes=_MATERIAL_TAKES)
     values = read_section(resonator, fields, context=f" for a {kind}")
     if "material" in module.FIELDS and (values.get("material") is not None or module.FIELDS["material"].required):
         values["material"] = material_from(resonator)
@@ -222,11 +306,19 @@ def _build_resonator(resonator):
         raise resonator.error(error.key, str(error)) from None
 
 
+_SECTION_KEYS = {
+    "excitation": _EXCITATION_FIELDS,
+    "pickup": ("position",),
+    "damping": _DAMPING_FIELDS,
+    "render": _RENDER_FIELDS,
+}
+
+
 def _sections(top, file):
     sections = {}
-    for key in ("excitation", "pickup", "damping", "render"):
+    for key, allowed in _SECTION_KEYS.items():
         if key in top.mapping and top.mapping[key] is not None:
-            sections[key] = top.child(key)
+            sections[key] = top.child(key, allowed)
         else:
             sections[key] = Section(LineDict(), file=file, path=key)
     return sections
@@ -249,7 +341,7 @@ def patch_from_mapping(mapping, *, file="<patch>", overrides=None):
     mapping = _apply_overrides(mapping, overrides or {}, file)
     top = Section(mapping, file=file)
     top_values = read_section(top, _TOP)
-    spec = _build_resonator(top.child("resonator"))
+    spec = _build_resonator(top.child("resonator", _RESONATOR_TAKES))
     style = resonator_module(spec.TYPE).position_style(spec)
     sections = _sections(top, file)
     exc = sections["excitation"]
@@ -340,7 +432,7 @@ def _check_size(patch, overrides):
         else:
             file, line, name = patch.source, patch.lines.get("render.duration"), "render.duration"
         raise PatchError(
-            f"this render would need about {need / 2**30:.1f} GiB of memory, more than a workstation has "
+            f"this render would need about {need / 2**30:.3g} GiB of memory, more than a workstation has "
             f"(limit {MEMORY_LIMIT_BYTES / 2**30:.0f} GiB): shorten render.duration or lower render.sample_rate",
             file=file,
             line=line,

@@ -4,14 +4,16 @@ These functions glue the rooms together; they do no file work.
 """
 from __future__ import annotations
 
+import math
+
 import numpy as np
 
 from .damping import two_point_t60
 from .engine import render_modes
 from .excitation import excitation_weights
 from .modes import NODE_TOLERANCE, PartialTable, frozen_array
-from .resonators import resonator_modes, resonator_name
-from .resonators import UnreachablePitch
+from .patch import MAX_SAMPLE_RATE
+from .resonators import UnreachablePitch, resonator_modes, resonator_name
 
 __all__ = ["mode_set", "partial_table", "render_patch"]
 
@@ -61,11 +63,7 @@ def partial_table(patch, *, modes=None):
             f"{len(dropped)} modes at or above Nyquist ({nyquist:g} Hz) left out: {shown}"
         )
     if not np.any(keep):
-        raise patch.error(
-            "render.sample_rate",
-            f"every mode is at or above Nyquist ({nyquist:g} Hz): raise render.sample_rate above "
-            f"{2 * modes.frequency_hz[0]:.0f} Hz",
-        )
+        raise _all_above_nyquist(patch, float(modes.frequency_hz[0]), nyquist)
     fundamental = float(modes.frequency_hz[0])
     # Weights are computed over every computed mode, then the ones at or above
     # Nyquist are dropped: the level of a mode does not depend on the sample rate.
@@ -130,6 +128,37 @@ def partial_table(patch, *, modes=None):
         parameters=kept.parameters,
         warnings=tuple(warnings),
     )
+
+
+def _all_above_nyquist(patch, lowest_hz, nyquist):
+    """The error when every mode is at or above Nyquist, blaming the key that can fix it.
+
+    A higher sample rate helps only if one within the allowed range holds the
+    lowest mode; otherwise the pitch (or, when no pitch is given, the
+    resonator's own keys) must come down.
+    """
+    needed = math.floor(2.0 * lowest_hz) + 1  # Hz: the smallest whole rate with lowest_hz below Nyquist
+    if needed <= MAX_SAMPLE_RATE:
+        return patch.error(
+            "render.sample_rate",
+            f"every mode is at or above Nyquist ({nyquist:g} Hz): raise render.sample_rate to {needed} Hz or more",
+        )
+    key = _pitch_key(patch)
+    fix = "lower the pitch" if key.endswith(".pitch") else "make the object sound lower (larger, heavier or slacker)"
+    return patch.error(
+        key,
+        f"the lowest mode sounds at {lowest_hz:.4g} Hz, above what any sample rate allowed here can hold "
+        f"(Nyquist {MAX_SAMPLE_RATE / 2:g} Hz at the highest rate, {MAX_SAMPLE_RATE} Hz): {fix}",
+    )
+
+
+def _pitch_key(patch):
+    """The dotted key that sets the patch's pitch: resonator.pitch when given, else the resonator."""
+    if getattr(patch.resonator, "pitch_hz", None) is not None or "resonator.pitch" in patch.lines:
+        return "resonator.pitch"
+    if "resonator.fundamental" in patch.lines:
+        return "resonator.fundamental"
+    return "resonator"
 
 
 def render_patch(patch, *, table=None):

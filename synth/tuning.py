@@ -43,6 +43,7 @@ __all__ = [
     "MIN_POINTS",
     "MAX_POINTS",
     "TOLERANCE_CENTS",
+    "TUNING_CAUTION",
     "parse_ratios",
     "undercut_profile",
     "tune_undercut",
@@ -63,6 +64,11 @@ MAX_HALF_WIDTH = 0.5
 DEFAULT_POINTS = 41
 MIN_POINTS = 9
 MAX_POINTS = bar.MAX_PROFILE_POINTS
+#: One line printed with every tuning report and at the top of a tuned patch.
+TUNING_CAUTION = (
+    "caution: real stock (wood above all) varies from piece to piece, so these figures are previews: "
+    "defer to the maker's data and qualified practice, and remove material a little at a time"
+)
 #: A tuning within this many cents on every target counts as reached.
 TOLERANCE_CENTS = 2.0
 #: Profile values are rounded to this step (m) before the final check.
@@ -289,6 +295,7 @@ def tuning_report(tuning, *, name="bar"):
     ]
     for i, (t, r, e, f) in enumerate(zip(tuning.targets, tuning.ratios, tuning.cents_error, tuning.frequency_hz)):
         lines.append(f"  B{i + 1:<7d}{t:>7.4g}{r:>10.4f}{e:>+13.2f}{f:>9.2f}")
+    lines.append(f"  {TUNING_CAUTION}")
     return "\n".join(lines)
 
 
@@ -320,6 +327,6 @@ def tuned_patch_text(mapping, tuning, *, source="patch"):
     mapping["resonator"] = resonator
     name = str(mapping.get("name", "bar"))
     mapping["name"] = name if name.endswith("-tuned") else f"{name[:74]}-tuned"
-    header = [f"# Written by synth tune-bar from {source}."]
+    header = [f"# {TUNING_CAUTION}", f"# Written by synth tune-bar from {source}."]
     header += [f"# {line.strip()}" for line in tuning_report(tuning, name=name).splitlines()[:3]]
     return "\n".join(header) + "\n" + yaml.safe_dump(mapping, sort_keys=False, allow_unicode=True)

@@ -13,6 +13,7 @@ from __future__ import annotations
 
 import math
 import re
+import reprlib
 
 import numpy as np
 
@@ -25,6 +26,7 @@ __all__ = [
     "parse_pitch",
     "midi_to_note",
     "cents",
+    "short_repr",
     "A4_HZ",
 ]
 
@@ -54,6 +56,39 @@ _QUANTITY = re.compile(r"^\s*([-+]?(?:\d+\.?\d*|\.\d+)(?:[eE][-+]?\d+)?)\s*([^\s
 _NOTE = re.compile(r"^\s*([A-Ga-g])([#b♯♭]?)(-?\d+)\s*$")
 _PITCH_CLASS = {"C": 0, "D": 2, "E": 4, "F": 5, "G": 7, "A": 9, "B": 11}
 _NAMES_SHARP = ("C", "C#", "D", "D#", "E", "F", "F#", "G", "G#", "A", "A#", "B")
+
+
+class _ShortRepr(reprlib.Repr):
+    """reprlib with short limits that also shortens LineDicts and huge ints."""
+
+    def __init__(self):
+        super().__init__()
+        self.maxlevel = 2
+        self.maxstring = self.maxother = 60
+        self.maxlist = self.maxtuple = self.maxset = 6
+        self.maxdict = 4
+
+    def repr_int(self, x, level):
+        if abs(x).bit_length() > 128:  # str() of a huge int is slow and limited (4300 digits)
+            return f"<a whole number of about {int(abs(x).bit_length() * math.log10(2)) + 1} digits>"
+        return super().repr_int(x, level)
+
+    def repr_LineDict(self, x, level):  # synth.yamlio.LineDict
+        return self.repr_dict(x, level)
+
+
+_SHORT = _ShortRepr()
+_SHORT_MAX = 80  # characters of a value echoed in a message
+
+
+def short_repr(value):
+    """A repr of `value` short enough for a one-line message (reprlib, at most 80 characters).
+
+    >>> short_repr("x" * 100)[:12], short_repr(list(range(100)))
+    ("'xxxxxxxxxxx", '[0, 1, 2, 3, 4, 5, ...]')
+    """
+    text = _SHORT.repr(value)
+    return text if len(text) <= _SHORT_MAX else text[: _SHORT_MAX - 3] + "..."
 
 
 def parse_quantity(value, kind):
@@ -88,20 +123,28 @@ def parse_quantity(value, kind):
     if isinstance(value, bool):
         raise ValueError(f"expected a number{_unit_hint(kind)}, got {value!r}")
     if isinstance(value, (int, float)):
-        return float(value) * units.get(BARE_UNITS.get(kind), 1.0)
+        return _float(value) * units.get(BARE_UNITS.get(kind), 1.0)
     if not isinstance(value, str):
-        raise ValueError(f"expected a number{_unit_hint(kind)}, got {value!r}")
+        raise ValueError(f"expected a number{_unit_hint(kind)}, got {short_repr(value)}")
     match = _QUANTITY.match(value)
     if not match:
         if value.strip().lower() in ("nan", "inf", "-inf", "+inf", ".nan", ".inf"):
             return float(value.strip().lstrip("."))
-        raise ValueError(f"cannot read {value!r} as a number{_unit_hint(kind)}")
+        raise ValueError(f"cannot read {short_repr(value)} as a number{_unit_hint(kind)}")
     number, unit = match.groups()
     if not unit:
         return float(number) * units.get(BARE_UNITS.get(kind), 1.0)
     if unit not in units:
-        raise ValueError(f"unit {unit!r} is not allowed here{_unit_hint(kind)}")
+        raise ValueError(f"unit {short_repr(unit)} is not allowed here{_unit_hint(kind)}")
     return float(number) * units[unit]
+
+
+def _float(number):
+    """float(number); a whole number too large for a float becomes infinity (refused later as not finite)."""
+    try:
+        return float(number)
+    except OverflowError:
+        return math.inf if number > 0 else -math.inf
 
 
 def _unit_hint(kind):
@@ -121,7 +164,7 @@ def note_to_midi(name):
     """
     match = _NOTE.match(name)
     if not match:
-        raise ValueError(f"{name!r} is not a note name (e.g. A4, C#3, Bb1)")
+        raise ValueError(f"{short_repr(name)} is not a note name (e.g. A4, C#3, Bb1)")
     letter, accidental, octave = match.groups()
     semitone = _PITCH_CLASS[letter.upper()]
     semitone += {"#": 1, "♯": 1, "b": -1, "♭": -1}.get(accidental, 0)
@@ -151,12 +194,15 @@ def parse_pitch(value, *, a4_hz=A4_HZ):
     (440.0, 261.6256)
     """
     if isinstance(value, str) and _NOTE.match(value):
-        return float(midi_to_hz(note_to_midi(value), a4_hz=a4_hz))
+        try:
+            return float(a4_hz * 2.0 ** ((note_to_midi(value) - A4_MIDI) / 12.0))
+        except OverflowError:  # an absurd octave ("C999999"): refused later as not finite
+            return math.inf
     try:
         return parse_quantity(value, "frequency")
     except ValueError:
         raise ValueError(
-            f"{value!r} is not a pitch: give a note name (A4, C#3, Bb1) or a frequency (e.g. '110 Hz')"
+            f"{short_repr(value)} is not a pitch: give a note name (A4, C#3, Bb1) or a frequency (e.g. '110 Hz')"
         ) from None
 
 

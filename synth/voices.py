@@ -29,7 +29,15 @@ from dataclasses import dataclass
 import numpy as np
 import soundfile
 
-from .audio import DITHER_SEED, SUBTYPES, atomic_output, check_output_path, normalise, quantise
+from .audio import (
+    DITHER_SEED,
+    SUBTYPES,
+    atomic_output,
+    check_output_path,
+    normalise,
+    quantise,
+    whole_sample_rate,
+)
 from .engine import render_modes
 from .pipeline import partial_table
 from .units import A4_HZ
@@ -340,7 +348,7 @@ def _exact_length(signal, length):
     return out
 
 
-def write_song(path, buffer, *, sample_rate, bit_depth, peak_db):
+def write_song(path, buffer, *, sample_rate, bit_depth, peak_db, key=None):
     """Normalise `buffer` in place and write it atomically, a chunk at a time.
 
     Parameters
@@ -349,10 +357,14 @@ def write_song(path, buffer, *, sample_rate, bit_depth, peak_db):
         ``.wav`` or ``.flac`` in an existing folder.
     buffer : ndarray [shape=(n,) or (n, channels)], float32
         The mixed song; scaled in place, so no second whole-song array is made.
-    sample_rate : float, Hz
+    sample_rate : int > 0, Hz
+        A whole number (a float such as 44100.0 is fine).
     bit_depth : {16, 24, 32}
     peak_db : float or None
         Peak target in dBFS, or None to keep the absolute scale.
+    key : str or None
+        The option that named `path`, for the error if it cannot be written
+        (see :class:`synth.audio.atomic_output`).
 
     Returns
     -------
@@ -366,6 +378,8 @@ def write_song(path, buffer, *, sample_rate, bit_depth, peak_db):
     RenderError
         As :func:`synth.audio.normalise`: a non-finite signal, or a clip at
         absolute scale.  Raised before anything is written.
+    ValueError
+        If `sample_rate` is not a whole number of Hz.
 
     Notes
     -----
@@ -376,6 +390,7 @@ def write_song(path, buffer, *, sample_rate, bit_depth, peak_db):
     ``write_audio`` would.
     """
     fmt = check_output_path(path, bit_depth)
+    rate = whole_sample_rate(sample_rate)
     peak = 0.0
     for start in range(0, buffer.shape[0], WRITE_CHUNK_FRAMES):
         chunk_peak = float(np.max(np.abs(buffer[start : start + WRITE_CHUNK_FRAMES])))
@@ -387,8 +402,8 @@ def write_song(path, buffer, *, sample_rate, bit_depth, peak_db):
     if gain_db:
         buffer *= np.float32(10.0 ** (gain_db / 20.0))
     channels = 1 if buffer.ndim == 1 else buffer.shape[1]
-    with atomic_output(path) as tmp:
-        with soundfile.SoundFile(str(tmp), "w", samplerate=int(sample_rate), channels=channels,
+    with atomic_output(path, key=key) as tmp:
+        with soundfile.SoundFile(str(tmp), "w", samplerate=rate, channels=channels,
                                  subtype=SUBTYPES[bit_depth], format=fmt) as handle:
             for k, start in enumerate(range(0, buffer.shape[0], WRITE_CHUNK_FRAMES)):
                 seed = DITHER_SEED if k == 0 else (DITHER_SEED, k)

@@ -16,6 +16,15 @@ def run_cli(capsys, *argv):
     return status, out, err
 
 
+def error_line(err):
+    """The single ``synth: error:`` line of `err` (fails on tracebacks or more lines)."""
+    assert "Traceback" not in err, err
+    lines = err.strip().splitlines()
+    assert len(lines) == 1, f"expected one line on stderr, got {len(lines)}:\n{err}"
+    assert lines[0].startswith("synth: error: "), lines[0]
+    return lines[0]
+
+
 def check_bad_patch(tmp_path, monkeypatch, capsys, command, text, key, line, phrase):
     """Write `text` as patch.yaml and check `command` refuses it as a user error.
 

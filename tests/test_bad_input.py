@@ -29,7 +29,9 @@ from pathlib import Path
 import pytest
 
 from synth import InputFileError, PatchError, load_patch, patch_from_text
-from synth.cli import main
+
+from .cli_checks import error_line
+from .cli_checks import run_cli as run
 
 REPO = Path(__file__).resolve().parents[1]
 
@@ -86,23 +88,8 @@ def drop(old):
     return (old, None)
 
 
-def run(capsys, *argv):
-    """Run the CLI in-process: (status, stdout, stderr); argparse exits count too."""
-    try:
-        status = main([str(a) for a in argv])
-    except SystemExit as exit_:
-        status = exit_.code
-    out, err = capsys.readouterr()
-    return status, out, err
 
 
-def error_line(err):
-    """The single ``synth: error:`` line of `err` (fails on tracebacks or more lines)."""
-    assert "Traceback" not in err, err
-    lines = err.strip().splitlines()
-    assert len(lines) == 1, f"expected one line on stderr, got {len(lines)}:\n{err}"
-    assert lines[0].startswith("synth: error: "), lines[0]
-    return lines[0]
 
 
 def where(file, line=None, key=None):
@@ -232,12 +219,12 @@ CASES = [
     pytest.param((sub("  contact_time: 1.5 ms", "  contact_time: -1 ms"),), "excitation.contact_time", 12,
                  r"must be >= 0 s", id="negative-contact-time"),
     pytest.param((sub("  strength: 1.0", "  strength: -1"),), "excitation.strength", 13,
-                 r"must be >= 0", id="negative-strength"),
+                 r"must be > 0, got -1", id="negative-strength"),
     pytest.param((sub("  peak_db: -1.0", "  peak_db: 3"),), "render.peak_db", 25,
                  r"must be <= 0 dB, got 3", id="positive-peak-db"),
     # NaN and infinity (YAML's .nan/.inf and text forms)
     pytest.param((sub("  length: 650 mm", "  length: .nan"),), "resonator.length", 5,
-                 r"must be a finite number \(> 0; units m, .*\), got nan", id="nan-length"),
+                 r"must be a finite number \(1e-06 \.\. 1000; units m, .*\), got nan", id="nan-length"),
     pytest.param((sub("  t60: 2 s", "  t60: .inf"),), "damping.t60", 17,
                  r"must be a finite number \(> 0, <= 3600; units s, ms\), got inf", id="inf-t60"),
     pytest.param((sub("  duration: 0.2 s", "  duration: -.inf"),), "render.duration", 22,
@@ -292,7 +279,7 @@ CASES = [
     pytest.param((sub("  max_modes: 64", "  max_modes: 100000"),), "render.max_modes", 26,
                  r"must be <= 20000, got 100000", id="too-many-modes"),
     pytest.param((sub("  duration: 0.2 s", "  duration: 1e306 s"),), "render.duration", 22,
-                 r"GiB", id="absurd-duration"),
+                 r"must be <= 1e\+06 s, got '1e306 s' \(allowed: 0\.001 \.\. 1e\+06 s\)", id="absurd-duration"),
     # pitch and tension
     pytest.param((sub("  length: 650 mm", "  length: 100 mm"), sub("  diameter: 0.45 mm", "  diameter: 10 mm")),
                  "resonator.pitch", 7,
@@ -311,6 +298,66 @@ CASES = [
                  r"must be above the fundamental \(110\.00 Hz\)", id="high-frequency-below-fundamental"),
     pytest.param((sub("  release_t60: 0.15 s", "  release_t60: 2 h"),), "damping.release_t60", 20,
                  r"unit 'h' is not allowed here \(units: s, ms\)", id="unit-hours"),
+    # extreme but finite numbers: every unit kind has a physical range (schema.KIND_BOUNDS)
+    pytest.param((sub("  length: 650 mm", "  length: 1e308"),), "resonator.length", 5,
+                 r"must be <= 1000 m, got '1e308' \(allowed: 1e-06 \.\. 1000 m\)$", id="huge-length"),
+    pytest.param((sub("  length: 650 mm", "  length: 1.0e+30 mm"),), "resonator.length", 5,
+                 r"must be <= 1000 m, got '1\.0e\+30 mm' = 1e\+27 m \(allowed: ", id="huge-length-in-mm"),
+    pytest.param((sub("  diameter: 0.45 mm", "  diameter: 1e-30"),), "resonator.diameter", 6,
+                 r"must be >= 1e-06 m, got '1e-30' \(allowed: 1e-06 \.\. 1000 m\)$", id="tiny-diameter"),
+    pytest.param((sub("  high_frequency: 3 kHz", "  high_frequency: 1e300"),), "damping.high_frequency", 19,
+                 r"must be <= 1e\+06 Hz, got '1e300' \(allowed: 0\.01 \.\. 1e\+06 Hz\)$", id="huge-high-frequency"),
+    pytest.param((sub("  pitch: A2", "  pitch: 1.0e+30"),), "resonator.pitch", 7,
+                 r"must be <= 1e\+06 Hz, got 1e\+30 \(allowed: 0\.01 \.\. 1e\+06 Hz\)$", id="huge-pitch"),
+    pytest.param((sub("  pitch: A2", "  pitch: C99"),), "resonator.pitch", 7,
+                 r"must be <= 1e\+06 Hz, got 'C99' = 1\.036e\+31 Hz", id="note-name-above-range"),
+    pytest.param((sub("  pitch: A2", "  tension: 1e30 N"),), "resonator.tension", 7,
+                 r"must be <= 1e\+07 N, got '1e30 N' \(allowed: 1e-06 \.\. 1e\+07 N\)$", id="huge-tension"),
+    pytest.param((sub("  material: music-wire", "  material: {density: 1e9, youngs_modulus: 200 GPa}"),),
+                 "resonator.material.density", 4,
+                 r"must be <= 100000 kg/m\^3, got '1e9' \(allowed: 1 \.\. 100000 kg/m\^3\)$", id="huge-density"),
+    pytest.param((sub("  material: music-wire", "  material: {density: 1100, youngs_modulus: 500 Pa}"),),
+                 "resonator.material.youngs_modulus", 4,
+                 r"must be 0 or >= 1000 Pa, got '500 Pa' \(allowed: 0, or 1000 \.\. 1e\+13 Pa\)$",
+                 id="youngs-modulus-between-0-and-range"),
+    # renders: at least 1 ms long, at a whole number of Hz; a strength that sounds
+    pytest.param((sub("  duration: 0.2 s", "  duration: 1e-9"),), "render.duration", 22,
+                 r"must be >= 0\.001 s, got '1e-9'", id="empty-render"),
+    pytest.param((sub("  sample_rate: 8000", "  sample_rate: 44100.5"),), "render.sample_rate", 23,
+                 r"must be a whole number of Hz, got 44100\.5$", id="fractional-sample-rate"),
+    pytest.param((sub("  strength: 1.0", "  strength: 0"),), "excitation.strength", 13,
+                 r"must be > 0, got 0$", id="zero-strength"),
+    # every mode above Nyquist: blame the key that can fix it, with advice that is possible
+    pytest.param((sub("  pitch: A2", "  pitch: 5 kHz"),), "render.sample_rate", 23,
+                 r"every mode is at or above Nyquist \(4000 Hz\): raise render\.sample_rate to 10001 Hz or more$",
+                 id="pitch-above-nyquist"),
+    pytest.param((sub("  pitch: A2", "  pitch: 500 kHz"),), "resonator.pitch", 7,
+                 r"the lowest mode sounds at 5e\+05 Hz, above what any sample rate allowed here can hold "
+                 r"\(Nyquist 384000 Hz at the highest rate, 768000 Hz\): lower the pitch$", id="pitch-above-every-rate"),
+    pytest.param((sub("  length: 650 mm", "  length: 1 mm"), sub("  pitch: A2", "  tension: 10 kN")), "resonator", 2,
+                 r"the lowest mode sounds at \d\.\d+e\+06 Hz, above what any sample rate allowed here can hold .*: "
+                 r"make the object sound lower", id="tension-above-every-rate"),
+    # null and missing values, and sections that are not mappings, say what is taken
+    pytest.param((sub("  length: 650 mm", "  length: ~"),), "resonator.length", 5,
+                 r"must have a value, not null: give a length, e\.g\. '650 mm'; 1e-06 \.\. 1000 m$", id="null-length"),
+    pytest.param((drop("  length: 650 mm"),), "resonator.length", 2,
+                 r"missing required key \(a length, e\.g\. '650 mm'; 1e-06 \.\. 1000 m\)$", id="missing-length-takes"),
+    pytest.param((drop("  material: music-wire"),), "resonator.material", 2,
+                 r"missing required key \(a material name \(.*music-wire.*\) or a mapping of density, youngs_modulus",
+                 id="missing-material-takes"),
+    pytest.param((drop("name: test-string"),), "name", 1,
+                 r"missing required key \(a plain name of letters, digits, '-' and '_'\)$", id="missing-name-takes"),
+    pytest.param((sub("excitation:", "excitation: 5"), drop("  type: pluck"), drop("  position: 0.12"),
+                  drop("  contact_time: 1.5 ms"), drop("  strength: 1.0")), "excitation", 9,
+                 r"must be a mapping of keys, got int 5 \(allowed keys: contact_time, position, strength, type\)$",
+                 id="section-not-mapping-lists-keys"),
+    # keys YAML reads as something other than a name
+    pytest.param((sub("  ends: pinned", "  ends: pinned\n  ~: x"),), None, 9,
+                 r"keys must be plain names, got None: YAML reads ~ as nothing \(null\); put the key in quotes",
+                 id="null-key"),
+    pytest.param((sub("  ends: pinned", "  ends: pinned\n  yes: 3"),), None, 9,
+                 r"keys must be plain names, got True: YAML reads yes as true/false; put the key in quotes \('yes':\)",
+                 id="bool-key"),
 ]
 
 
@@ -333,7 +380,16 @@ def test_bad_patch(workdir, capsys, command, edits, key, line, phrase):
 
 FILE_CASES = [
     pytest.param(None, None, r"file not found", id="missing-file"),
-    pytest.param(b"\xff\xfe\x00name: x\n", None, r"cannot read: 'utf-8' codec can't decode", id="not-utf8"),
+    pytest.param(b"\xff\xfe\x00name: x\n", 1, r"not UTF-8 text: byte 0xff cannot be read; save the file as UTF-8",
+                 id="not-utf8"),
+    pytest.param(b"name: test-string\nresonator:\n  material: caf\xe9\n", 3, r"not UTF-8 text: byte 0xe9", id="latin-1-line-3"),
+    pytest.param(b"name: x\nresonator: " + b"[" * 5000 + b"]" * 5000 + b"\n", 2,
+                 r"nested too deeply: at most 64 levels of lists and mappings$", id="nested-5000-levels"),
+    pytest.param(b"name: x\nresonator: " + b"[" * 100 + b"]" * 100 + b"\n", 2,
+                 r"nested too deeply: at most 64 levels", id="nested-100-levels"),
+    pytest.param(b"a: &a [x, x, x, x, x, x, x, x, x]\n"
+                 + b"".join(f"{n}: &{n} [{', '.join(['*' + p] * 9)}]\n".encode() for p, n in zip("abcde", "bcdef")),
+                 6, r"too large: more than 200000 values once aliases \(\*name\) are expanded$", id="billion-laughs"),
     pytest.param(b"- name: test-string\n- resonator: 1\n", 1, r"a patch must be a mapping with keys name, resonator",
                  id="top-level-list"),
     pytest.param(b"just some text\n", 1, r"a patch must be a mapping", id="top-level-scalar"),
@@ -361,7 +417,7 @@ def test_folder_as_patch(workdir, capsys):
     (workdir / "folder.yaml").mkdir()
     status, _, err = run(capsys, "modes", "folder.yaml")
     assert status == 2
-    assert re.search(r"^synth: error: folder\.yaml: cannot read", error_line(err))
+    assert re.search(r"^synth: error: folder\.yaml: is a folder, not a file", error_line(err))
 
 
 def test_python_tag_is_not_executed(workdir, capsys):
@@ -425,6 +481,10 @@ OPTION_CASES = [
     pytest.param(["modes", "--max-modes", "100000"], "--max-modes", r"must be <= 20000", id="max-modes-huge"),
     pytest.param(["render", "--pitch", "Q9"], "--pitch", r"'Q9' is not a pitch: give a note name", id="pitch-name"),
     pytest.param(["modes", "--max-modes", "abc"], "--max-modes", r"must be a whole number, got str 'abc'", id="max-modes-text"),
+    pytest.param(["modes", "--pitch", "C99"], "--pitch", r"must be <= 1e\+06 Hz, got 'C99' = 1\.036e\+31 Hz", id="pitch-above-range"),
+    pytest.param(["render", "--duration", "1e-9"], "--duration", r"must be >= 0\.001 s, got 1e-09", id="duration-empty"),
+    pytest.param(["modes", "--sample-rate", "44100.5"], "--sample-rate", r"must be a whole number of Hz, got 44100\.5",
+                 id="sample-rate-fraction"),
 ]
 
 
@@ -475,7 +535,7 @@ def test_bad_output_path(workdir, capsys, options, phrase):
     message = error_line(err)
     assert status == 2
     assert out == ""
-    assert message.startswith("synth: error: --output: "), message
+    assert message.startswith("synth: error: command line: --output: "), message
     assert re.search(phrase, message), message
     assert written(workdir) == ["patch.yaml"]
 
@@ -485,7 +545,7 @@ def test_csv_missing_folder(workdir, capsys):
     status, out, err = run(capsys, "modes", "patch.yaml", "--csv", "missing/table.csv")
     assert status == 2
     assert out == ""
-    assert "--csv: folder 'missing' does not exist" in error_line(err)
+    assert "command line: --csv: output folder 'missing' does not exist" in error_line(err)
     assert written(workdir) == ["patch.yaml"]
 
 
@@ -548,6 +608,57 @@ def test_api_bad_override_names_option():
     with pytest.raises(PatchError, match=r"^command line: --duration: must be > 0") as info:
         patch_from_text(BASE, file="p.yaml", overrides={"render.duration": (-1, "--duration")})
     assert info.value.key == "--duration"
+
+
+# --------------------------------------------------------------------------
+# Huge values, library specs and MIDI maps.
+
+
+def nested_aliases(levels):
+    """A flow list whose aliases expand nine-fold per level (9**levels values, a few hundred bytes)."""
+    inner = "&a [" + ", ".join(["x"] * 9) + "]"
+    for previous, name in zip("abcdefgh"[: levels - 1], "bcdefghi"):
+        inner = f"&{name} [" + ", ".join([inner] + ["*" + previous] * 8) + "]"
+    return inner
+
+
+def test_alias_expanded_value_message_is_short(workdir, capsys):
+    """A value of 59049 expanded items (under the size limit) is echoed shortened, not in full."""
+    write(workdir, mutate(sub("name: test-string", "name: " + nested_aliases(5))))
+    status, _, err = run(capsys, "modes", "patch.yaml")
+    message = error_line(err)
+    assert status == 2
+    assert message.startswith(where("patch.yaml", 1, "name") + "[[[...]"), message
+    assert "is not a plain file-name slug" in message
+    assert len(message) < 300, len(message)
+
+
+def test_library_spec_empty_output(workdir, capsys):
+    """output: '' would write into the spec's own folder: refused."""
+    write(workdir, BASE)
+    write(workdir, "patch: patch.yaml\nnotes: [A2]\noutput: ''\n", name="spec.yaml")
+    status, out, err = run(capsys, "batch", "spec.yaml", "--workers", "1")
+    assert status == 2
+    assert out == ""
+    assert error_line(err).startswith(where("spec.yaml", 3, "output") + "is empty: name a folder"), err
+    assert written(workdir) == ["patch.yaml", "spec.yaml"]
+
+
+@pytest.mark.parametrize(("entry", "phrase"), [
+    pytest.param("''", r"is empty: name a patch file \(YAML\), relative to the map file$", id="empty"),
+    pytest.param("sub", r"'[^']*sub' is a folder, not a file: name the patch file \(YAML\) inside it$", id="folder"),
+])
+def test_map_patch_not_a_file(workdir, capsys, entry, phrase):
+    (workdir / "sub").mkdir()
+    write(workdir, f"default:\n  patch: {entry}\n", name="map.yaml")
+    song = REPO / "patches" / "midi" / "demo-song.mid"
+    status, out, err = run(capsys, "midi", song, "--map", "map.yaml", "-o", "out.wav")
+    message = error_line(err)
+    assert status == 2
+    assert out == ""
+    assert message.startswith(where("map.yaml", 2, "default.patch")), message
+    assert re.search(phrase, message), message
+    assert written(workdir) == ["map.yaml", "sub"]
 
 
 # --------------------------------------------------------------------------

@@ -12,7 +12,14 @@ import soundfile
 
 import synth
 from synth.cli import build_parser, main
-from synth.patch import _DAMPING_FIELDS, _EXCITATION_FIELDS, _RENDER_FIELDS, Damping, Excitation, RenderSettings
+from synth.patch import (
+    _DAMPING_FIELDS,
+    _EXCITATION_FIELDS,
+    _RENDER_FIELDS,
+    Damping,
+    Excitation,
+    RenderSettings,
+)
 
 PATCHES = sorted((Path(__file__).parent.parent / "patches").glob("*.yaml"))
 FAST = ["--duration", "0.3", "--sample-rate", "16000"]

@@ -423,13 +423,13 @@ def _edit(old, new):
 
 BAD_CASES = [
     pytest.param(_edit("  shape: circle", "  shape: rectangle"), "resonator.radius", 5,
-                 r"a rectangle takes width and height, not radius \(or set shape: circle\)", id="radius-with-rectangle"),
+                 r"a rectangle takes 'width' and 'height'; 'radius' is for a circle \(shape: circle\)", id="radius-with-rectangle"),
     pytest.param(_edit("  shape: circle\n  radius: 0.1 m", "  shape: rectangle\n  width: 0.3 m"), "resonator.height", 2,
-                 r"a rectangle needs both width and height", id="width-without-height"),
+                 r"missing for a rectangle: give 'width' and 'height'", id="width-without-height"),
     pytest.param(_edit("  radius: 0.1 m", "  radius: 0.1 m\n  width: 0.3 m"), "resonator.width", 6,
-                 r"a circle takes radius, not width \(or set shape: rectangle\)", id="width-with-circle"),
+                 r"a circle takes 'radius'; 'width' is for a rectangle \(shape: rectangle\)", id="width-with-circle"),
     pytest.param(_edit("  radius: 0.1 m\n", ""), "resonator.radius", 2,
-                 r"a circle needs radius", id="circle-without-radius"),
+                 r"missing for a circle: give 'radius'", id="circle-without-radius"),
     pytest.param(_edit("  shape: circle", "  shape: triangle"), "resonator.shape", 4,
                  r"'triangle' is not allowed; did you mean 'rectangle'\? \(allowed: circle, rectangle\)", id="unknown-shape"),
     pytest.param(_edit("  tension: 1000 N/m", "  tension: 1000 N/m\n  pitch: A3"), "resonator.pitch", 8,

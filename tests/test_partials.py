@@ -8,6 +8,7 @@ from __future__ import annotations
 
 import json
 import math
+import re
 
 import numpy as np
 import pytest
@@ -206,3 +207,22 @@ BAD_CASES = [
 @pytest.mark.parametrize(("text", "key", "line", "phrase"), BAD_CASES)
 def test_bad_partials_patch(tmp_path, monkeypatch, capsys, command, text, key, line, phrase):
     check_bad_patch(tmp_path, monkeypatch, capsys, command, text, key, line, phrase)
+
+
+@pytest.mark.parametrize("key,values,phrase", [
+    ("levels_db", "[1e4, 0]", r"entry 1 \('1e4'\) must be <= 200"),
+    ("ratios", "[1e-9, 1]", r"entry 1 \('1e-9'\) must be >= 0\.001"),
+])
+def test_list_entries_in_range(write_patch, capsys, key, values, phrase):
+    text = f"""\
+    name: bounds
+    resonator:
+      type: partials
+      fundamental: 300 Hz
+      ratios: [1, 2]
+      {key}: {values}
+    """.replace("ratios: [1, 2]\n      ratios:", "ratios:")
+    path = write_patch(text)
+    assert main(["modes", str(path)]) == 2
+    err = capsys.readouterr().err.strip()
+    assert len(err.splitlines()) == 1 and f"resonator.{key}" in err and re.search(phrase, err), err

@@ -400,7 +400,7 @@ def solve_length(spec, pitch_hz):
     top = first_frequency(spec, shortest)
     if top < pitch_hz:
         raise UnreachablePitch(
-            f"pitch {pitch_hz:.6g} Hz is above what this bar can reach (about {top:.0f} Hz at "
+            f"pitch {pitch_hz:.6g} Hz is above what this bar can reach (about {top:.6g} Hz at "
             f"{shortest * 1e3:.4g} mm, {MIN_LENGTH_RATIO:g} x its largest cross-section dimension, the "
             "shortest piece bar theory covers): make it thinner or narrower, or lower the pitch"
         )

@@ -9,6 +9,11 @@ A resonator module ``synth/resonators/<name>.py`` provides
 ``build_spec(values) -> spec``
     A frozen dataclass in SI units from the checked values; cross-key
     problems raise :class:`SpecError` naming the key to blame.
+``PITCH_REPLACES`` : tuple of str
+    The keys a command-line ``--pitch`` replaces: the patch loader drops them
+    from the resonator section before it sets ``pitch``, so the two never
+    clash.  Name the keys the pitch is solved for, the parameter ``retune``
+    moves (``("tension",)`` for a string, ``("thickness",)`` for a plate).
 ``position_style(spec) -> str``
     ``"fraction"`` (a number 0..1 along the length), ``"xy"`` (``[x, y]``
     fractions), ``"polar"`` (``{radius: fraction, angle: degrees}``) or
@@ -56,8 +61,8 @@ def stress_warnings(stress, strength, what):
         return []
     fraction = stress / strength
     head = (
-        f"{what} stress {stress / 1e6:.0f} MPa is {100 * fraction:.0f}% of the tensile strength "
-        f"({strength / 1e6:.0f} MPa)"
+        f"{what} stress {stress / 1e6:.4g} MPa is {100 * fraction:.3g}% of the tensile strength "
+        f"({strength / 1e6:.4g} MPa)"
     )
     if fraction >= 1.0:
         return [f"{head}: this {what} would break; this is a preview, defer to the maker's data"]

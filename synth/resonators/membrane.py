@@ -48,6 +48,7 @@ from scipy.special import jn_zeros, jv
 from ..modes import ModeSet, frozen_array
 from ..schema import Field
 from .common import SpecError, UnreachablePitch, stress_warnings
+from .outline import check_outline, circle_rows, frame_angle
 
 __all__ = [
     "FIELDS",
@@ -133,7 +134,7 @@ class MembraneSpec:
 def build_spec(values):
     """A :class:`MembraneSpec` from checked patch values (``material`` is a Material)."""
     shape = values["shape"]
-    _check_outline(shape, values)
+    check_outline(shape, values)
     if (values["pitch"] is None) == (values["tension"] is None):
         raise SpecError(
             "give exactly one of 'pitch' (the tension is solved) or 'tension' (N/m)",
@@ -155,21 +156,6 @@ def build_spec(values):
         poisson_ratio=None if constants is None else constants.poisson_ratio,
         tensile_strength=None if constants is None else constants.tensile_strength,
     )
-
-
-def _check_outline(shape, values):
-    if shape == "circle":
-        for key in ("width", "height"):
-            if values[key] is not None:
-                raise SpecError(f"a circle takes radius, not {key} (or set shape: rectangle)", key=key)
-        if values["radius"] is None:
-            raise SpecError("a circle needs radius", key="radius")
-        return
-    if values["radius"] is not None:
-        raise SpecError("a rectangle takes width and height, not radius (or set shape: circle)", key="radius")
-    for key in ("width", "height"):
-        if values[key] is None:
-            raise SpecError("a rectangle needs both width and height", key=key)
 
 
 def _areal_density(values):
@@ -307,24 +293,11 @@ def _zeros_below(m, bound):
     return zeros[zeros < bound]
 
 
-def _frame_angle(excitation, pickup):
-    """Basis direction (rad): the excitation's angle, or the pickup's if it is central."""
-    if excitation[0] > 0.0:
-        return excitation[1]
-    if pickup is not None and pickup[0] > 0.0:
-        return pickup[1]
-    return 0.0
-
-
 def _circle_modes(spec, speed, excitation, pickup, n_modes):
     split = pickup is not None
-    frame = _frame_angle(excitation, pickup)
+    frame = frame_angle(excitation, pickup)
     entries, zeros = _circle_table(n_modes, split)
-    rows = []
-    for j, m, n in entries:
-        orientations = ("",) if m == 0 else (("cos", "sin") if split else ("pair",))
-        rows.extend((j, m, n, o) for o in orientations)
-    rows = rows[:n_modes]
+    rows = [(*entries[i], o) for i, o in circle_rows([m for _, m, _ in entries], split, n_modes)]
     j = np.array([r[0] for r in rows])
     m = np.array([r[1] for r in rows])
     n = np.array([r[2] for r in rows])

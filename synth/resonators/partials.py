@@ -95,7 +95,7 @@ def build_spec(values):
             "give exactly one of 'pitch' (the lowest partial sounds there) or 'fundamental' (Hz, the ratios' reference)",
             key="pitch" if pitch is not None else None,
         )
-    ratios = _number_list(values["ratios"], "ratios", "a ratio", kind="number", positive=True)
+    ratios = _number_list(values["ratios"], "ratios", "a ratio", kind="number", positive=True, low=1e-3, high=1e4)
     n = len(ratios)
     t60 = None
     if values["t60"] is not None:
@@ -103,7 +103,7 @@ def build_spec(values):
         _same_length(t60, n, "t60", "decay time (s)")
     levels = None
     if values["levels_db"] is not None:
-        levels = _number_list(values["levels_db"], "levels_db", "a level", kind="level")
+        levels = _number_list(values["levels_db"], "levels_db", "a level", kind="level", low=-200.0, high=200.0)
         _same_length(levels, n, "levels_db", "level (dB)")
     spec = PartialsSpec(reference_hz=1.0, ratios=ratios, t60=t60, levels_db=levels)
     if pitch is not None:
@@ -111,7 +111,7 @@ def build_spec(values):
     return replace(spec, reference_hz=fundamental)
 
 
-def _number_list(value, key, what, *, kind, positive=False, high=None):
+def _number_list(value, key, what, *, kind, positive=False, low=None, high=None):
     """A tuple of finite SI numbers from a YAML list, or SpecError naming `key`."""
     if not isinstance(value, list) or not value:
         raise SpecError(f"must be a non-empty list of numbers, e.g. [1, 2.76, 5.40], got {value!r}", key=key)
@@ -127,6 +127,8 @@ def _number_list(value, key, what, *, kind, positive=False, high=None):
             raise SpecError(f"entry {i} ({item!r}) must be a finite number", key=key)
         if positive and number <= 0:
             raise SpecError(f"entry {i} ({item!r}) must be > 0", key=key)
+        if low is not None and number < low:
+            raise SpecError(f"entry {i} ({item!r}) must be >= {low:g}", key=key)
         if high is not None and number > high:
             raise SpecError(f"entry {i} ({item!r}) must be <= {high:g}", key=key)
         numbers.append(number)

@@ -31,6 +31,7 @@ from .common import SAFE_STRESS_FRACTION, SpecError, UnreachablePitch, stress_wa
 
 __all__ = [
     "FIELDS",
+    "PITCH_REPLACES",
     "StringSpec",
     "build_spec",
     "position_style",
@@ -55,6 +56,9 @@ FIELDS = {
     "tension": Field("force", positive=True),
     "ends": Field("choice", default="pinned", choices=("pinned", "clamped")),
 }
+
+#: Keys a command-line ``--pitch`` replaces (for the patch loader).
+PITCH_REPLACES = ("tension",)
 
 
 @dataclass(frozen=True)
