@@ -17,7 +17,7 @@ from pathlib import Path
 import numpy as np
 import soundfile
 
-from .errors import PatchError, RenderError
+from .errors import COMMAND_LINE, RenderError, option_error
 
 __all__ = [
     "peak_dbfs",
@@ -39,8 +39,6 @@ SUBTYPES = {16: "PCM_16", 24: "PCM_24", 32: "FLOAT"}
 #: file suffix -> soundfile format, with the bit depths it can hold.
 FORMATS = {".wav": ("WAV", (16, 24, 32)), ".flac": ("FLAC", (16, 24))}
 DITHER_SEED = 0  # fixed, so a render writes the same bytes every time
-#: The ``file`` of errors about a command-line option (``command line: --output: ...``).
-COMMAND_LINE = "command line"
 
 
 def peak_dbfs(signal):
@@ -116,11 +114,6 @@ def quantise(signal, bit_depth, *, seed=DITHER_SEED):
     raise ValueError(f"bit_depth={bit_depth!r} must be one of 16, 24, 32")
 
 
-def _option_error(message, key):
-    """PatchError about the command-line option `key` (``command line: KEY: message``)."""
-    return PatchError(message, file=COMMAND_LINE, key=key)
-
-
 def _same_file(a, b):
     """True if paths `a` and `b` name one file (links and ``..`` included)."""
     try:
@@ -151,17 +144,17 @@ def check_output_file(path, *, suffixes, inputs=(), key="--output", make_folder=
     """
     path = Path(path)
     if path.suffix.lower() not in suffixes:
-        raise _option_error(f"output must end in {' or '.join(suffixes)}, got {path.name!r}", key)
+        raise option_error(f"output must end in {' or '.join(suffixes)}, got {path.name!r}", key)
     for source in inputs:
         if source is not None and _same_file(path, source):
-            raise _option_error(f"{str(path)!r} is an input of this command; name another file", key)
+            raise option_error(f"{str(path)!r} is an input of this command; name another file", key)
     if path.is_dir():
-        raise _option_error(f"{str(path)!r} is a folder; name a file inside it", key)
+        raise option_error(f"{str(path)!r} is a folder; name a file inside it", key)
     folder = path.parent
     if folder.exists() and not folder.is_dir():
-        raise _option_error(f"{str(folder)!r} is not a folder", key)
+        raise option_error(f"{str(folder)!r} is not a folder", key)
     if not make_folder and not folder.exists():
-        raise _option_error(f"output folder {str(folder)!r} does not exist", key)
+        raise option_error(f"output folder {str(folder)!r} does not exist", key)
     return path
 
 
@@ -175,7 +168,7 @@ def check_output_path(path, bit_depth, *, inputs=(), key="--output", make_folder
     if suffix in FORMATS:
         fmt, depths = FORMATS[suffix]
         if bit_depth not in depths:
-            raise _option_error(f"{fmt} cannot hold {int(bit_depth)}-bit samples (allowed: {', '.join(map(str, depths))})", key)
+            raise option_error(f"{fmt} cannot hold {int(bit_depth)}-bit samples (allowed: {', '.join(map(str, depths))})", key)
     check_output_file(path, suffixes=tuple(FORMATS), inputs=inputs, key=key, make_folder=make_folder)
     return FORMATS[suffix][0]
 
@@ -224,7 +217,7 @@ class atomic_output:
         message = f"cannot write {str(self.path)!r}: {error.strerror or error}"
         if self.key is None:
             return RenderError(message)
-        return _option_error(message, self.key)
+        return option_error(message, self.key)
 
     def _remove(self):
         if self.tmp is not None:

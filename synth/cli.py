@@ -19,17 +19,15 @@ import numpy as np
 
 from . import __version__
 from .audio import (
-    COMMAND_LINE,
     atomic_output,
     check_output_file,
     check_output_path,
     make_output_folder,
     normalise,
     peak_dbfs,
-    whole_sample_rate,
     write_audio,
 )
-from .errors import ModalError, PatchError
+from .errors import ModalError, option_error
 from .modes import table_to_csv, table_to_json, table_to_text
 from .patch import load_patch, patch_from_mapping
 from .pipeline import partial_table, render_patch
@@ -71,18 +69,7 @@ def _warn(messages):
 
 def _check_rows(rows):
     if rows is not None and rows < 1:
-        raise PatchError(f"must be a whole number >= 1, got {rows}", file=COMMAND_LINE, key="--rows")
-
-
-def _check_sample_rate(patch, option_given):
-    """PatchError unless the patch renders at a whole number of Hz (a WAV header holds nothing else)."""
-    try:
-        whole_sample_rate(patch.render.sample_rate)
-    except ValueError:
-        message = f"must be a whole number of Hz, got {patch.render.sample_rate:g}"
-        if option_given:
-            raise PatchError(message, file=COMMAND_LINE, key="--sample-rate") from None
-        raise patch.error("render.sample_rate", message) from None
+        raise option_error(f"must be a whole number >= 1, got {rows}", "--rows")
 
 
 def cmd_modes(args):
@@ -107,7 +94,6 @@ def cmd_render(args):
     _check_rows(args.rows)
     patch = load_patch(args.patch, overrides=_overrides(args))
     bits = patch.render.bit_depth
-    _check_sample_rate(patch, args.sample_rate is not None)
     out = Path(args.output) if args.output else DEFAULT_OUTPUT_DIR / f"{patch.name}.wav"
     check_output_path(out, bits, inputs=(args.patch,), make_folder=not args.output)
     signal, table = render_patch(patch)
@@ -187,11 +173,11 @@ def cmd_tune_bar(args):
     if out is not None:
         check_output_file(out, suffixes=(".yaml", ".yml"), inputs=(args.patch,), key="--output")
     if not MIN_POINTS <= args.points <= MAX_POINTS:
-        raise PatchError(f"must be {MIN_POINTS}..{MAX_POINTS}, got {args.points}", file="command line", key="--points")
+        raise option_error(f"must be {MIN_POINTS}..{MAX_POINTS}, got {args.points}", "--points")
     try:
         targets = parse_ratios(args.ratios)
     except TuningError as error:
-        raise PatchError(str(error), file="command line", key="--ratios") from None
+        raise option_error(str(error), "--ratios") from None
     mapping = load_yaml_file(args.patch)
     patch = patch_from_mapping(mapping, file=str(args.patch))
     if patch.resonator.TYPE != "bar":
@@ -201,7 +187,7 @@ def cmd_tune_bar(args):
     except TuningError as error:
         if error.key.startswith("resonator."):
             raise patch.error(error.key, str(error)) from None
-        raise PatchError(str(error), file="command line", key=error.key) from None
+        raise option_error(str(error), error.key) from None
     print(tuning_report(tuning, name=patch.name))
     if out is None:
         print("profile:  # paste into the patch's resonator section in place of thickness")
@@ -320,8 +306,6 @@ def main(argv=None):
         sys.stdout.flush()  # a closed pipe shows here, not at interpreter exit
         return status
     except ModalError as error:
-        if isinstance(error, PatchError) and error.file is None and (error.key or "").startswith("--"):
-            error.file = COMMAND_LINE  # every option error reads "command line: --option: ..."
         print(f"synth: error: {error}", file=sys.stderr)
         return 2
     except BrokenPipeError:

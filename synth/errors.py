@@ -7,7 +7,10 @@ processes).
 """
 from __future__ import annotations
 
-__all__ = ["ModalError", "PatchError", "RenderError", "InputFileError"]
+__all__ = ["ModalError", "PatchError", "RenderError", "InputFileError", "COMMAND_LINE", "option_error"]
+
+#: The ``file`` of errors about a command-line option (``command line: --output: ...``).
+COMMAND_LINE = "command line"
 
 
 class ModalError(Exception):
@@ -56,3 +59,8 @@ class InputFileError(PatchError):
 
 class RenderError(RuntimeError, ModalError):
     """A render that cannot be done as asked (it would clip, or is too large)."""
+
+
+def option_error(message, option):
+    """The PatchError about command-line `option` (``command line: --option: message``)."""
+    return PatchError(message, file=COMMAND_LINE, key=option)

@@ -12,10 +12,11 @@ import os
 import queue
 import re
 import signal
+from abc import ABC, abstractmethod
 from concurrent.futures import ProcessPoolExecutor
 from concurrent.futures.process import BrokenProcessPool
 
-from .errors import PatchError, RenderError
+from .errors import RenderError, option_error
 
 __all__ = ["Inline", "Pool", "Dask", "backend", "default_workers", "POLL_S", "CONNECT_TIMEOUT_S"]
 
@@ -50,11 +51,12 @@ class Inline:
             yield index, self.work(task)
 
 
-class _Futures:
+class _Futures(ABC):
     """Shared loop for executors with futures: yield results as they come, stop on request."""
 
-    def _submit(self, task):  # pragma: no cover - abstract
-        raise NotImplementedError
+    @abstractmethod
+    def _submit(self, task):
+        """Hand `task` to the executor; return a future."""
 
     def _cancel(self, futures):
         for future in futures:
@@ -147,20 +149,20 @@ class Dask(_Futures):
 
     def __enter__(self):
         if not _ADDRESS.match(self.address):
-            raise PatchError(
+            raise option_error(
                 f"{self.address!r} is not a scheduler address: give PROTOCOL://HOST:PORT, e.g. tcp://10.0.0.5:8786",
-                key="--scheduler",
+                "--scheduler",
             )
         try:
             from distributed import Client
         except ImportError:
-            raise PatchError(
-                "needs Dask distributed, the optional extra 'cluster': pip install '.[cluster]'", key="--scheduler"
+            raise option_error(
+                "needs Dask distributed, the optional extra 'cluster': pip install '.[cluster]'", "--scheduler"
             ) from None
         try:
             self.client = Client(self.address, timeout=CONNECT_TIMEOUT_S, set_as_default=False)
         except (OSError, TimeoutError, ValueError, TypeError) as error:
-            raise PatchError(f"cannot reach a Dask scheduler at {self.address!r}: {error}", key="--scheduler") from None
+            raise option_error(f"cannot reach a Dask scheduler at {self.address!r}: {error}", "--scheduler") from None
         return self
 
     def __exit__(self, *exc):
@@ -187,10 +189,10 @@ def backend(work, workers, scheduler, n_tasks):
     """Where `n_tasks` calls of `work` run: Dask if `scheduler`, else a pool or this process."""
     if scheduler is not None:
         if workers is not None:
-            raise PatchError("give --workers for a local run or --scheduler for a Dask cluster, not both", key="--workers")
+            raise option_error("give --workers for a local run or --scheduler for a Dask cluster, not both", "--workers")
         return Dask(work, scheduler)
     if workers is not None and (isinstance(workers, bool) or not isinstance(workers, int) or workers < 1):
-        raise PatchError(f"must be a whole number >= 1, got {workers!r}", key="--workers")
+        raise option_error(f"must be a whole number >= 1, got {workers!r}", "--workers")
     workers = default_workers() if workers is None else workers
     workers = max(1, min(workers, n_tasks))
     return Inline(work) if workers == 1 else Pool(work, workers)

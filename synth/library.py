@@ -50,7 +50,7 @@ from pathlib import Path
 import numpy as np
 
 from . import __version__
-from .errors import PatchError
+from .errors import PatchError, option_error
 from .libindex import (
     FORMAT_VERSION,
     MIDI_HIGH,
@@ -218,7 +218,7 @@ def load_library_spec(path, *, output=None):
     if output is not None:
         folder = Path(output)
         if folder.exists() and not folder.is_dir():
-            raise PatchError(f"{output!r} exists and is not a folder", key="--output")
+            raise option_error(f"{output!r} exists and is not a folder", "--output")
     elif values["output"] is not None:
         if not values["output"].strip():
             raise top.error("output", "is empty: name a folder (relative to the spec file), or leave the key out "

@@ -63,11 +63,11 @@ from pathlib import Path
 import numpy as np
 from tqdm import tqdm
 
-from .audio import check_output_path, make_output_folder, whole_sample_rate
+from .audio import check_output_path, make_output_folder
 from .errors import InputFileError, PatchError, RenderError
 from .midifile import MidiSong, TempoMap, read_midi, tempo_map
 from .patch import _RENDER_FIELDS, MEMORY_LIMIT_BYTES, load_patch
-from .schema import Field, Section, convert, read_section
+from .schema import Field, Section, convert_option, read_section
 from .units import A4_HZ, midi_to_note
 from .voices import (
     VoicingCache,
@@ -390,22 +390,6 @@ class MidiRender:
     warnings: tuple
 
 
-def _option(value, kind, option, **bounds):
-    """A command-line value of a unit `kind` within `bounds` (errors name the option)."""
-    try:
-        return convert(Field(kind, **bounds), value)
-    except ValueError as error:
-        raise PatchError(str(error), file="command line", key=option) from None
-
-
-def _override(name, value, option):
-    """A --sample-rate / --bit-depth value checked as render.<name> (errors name the option)."""
-    try:
-        return convert(_RENDER_FIELDS[name], value)
-    except ValueError as error:
-        raise PatchError(str(error), file="command line", key=option) from None
-
-
 def _setup(patch, map_file, sample_rate, bit_depth):
     """(ChannelMap, {patch path: index}, [Patch at the output rate], output settings) of --patch or --map.
 
@@ -423,8 +407,9 @@ def _setup(patch, map_file, sample_rate, bit_depth):
         patches = {Path(patch): loaded}
     else:
         chmap = load_channel_map(map_file)
-        settings = {"sample_rate": 48000.0, "bit_depth": 24, "peak_db": -1.0, **chmap.render}
-        settings.update({name: _override(name, value, option) for name, (value, option) in given.items()})
+        settings = {name: _RENDER_FIELDS[name].default for name in ("sample_rate", "bit_depth", "peak_db")}
+        settings.update(chmap.render)
+        settings.update({name: convert_option(_RENDER_FIELDS[name], value, option) for name, (value, option) in given.items()})
         patches = {}
         for entry in [*chmap.channels.values(), *chmap.tracks.values(), *([chmap.default] if chmap.default else [])]:
             if entry.patch_path not in patches:
@@ -449,19 +434,6 @@ def _assign(performance, song, chmap, order):
         raise PatchError(f"no patch for {shown}: add the channel (1-16) under channels:, or a default: entry",
                          file=chmap.source, line=chmap.line, key="channels")
     return assigned
-
-
-def _check_sample_rate(rate, option_given, source):
-    """PatchError unless `rate` is a whole number of Hz (all a WAV header holds), naming where it came from."""
-    try:
-        whole_sample_rate(rate)
-    except ValueError:
-        message = f"must be a whole number of Hz, got {rate:g}"
-        if option_given:
-            raise PatchError(message, file="command line", key="--sample-rate") from None
-        if isinstance(source, ChannelMap):
-            raise PatchError(message, file=source.source, key="render.sample_rate") from None
-        raise source.error("render.sample_rate", message) from None
 
 
 def _note_context(note, seconds):
@@ -500,14 +472,14 @@ def render_midi(song_path, *, output, patch=None, map_file=None, a4_hz=None, sam
     """
     if (patch is None) == (map_file is None):
         raise ValueError("give exactly one of patch= (every channel) or map_file= (a map file)")
-    a4 = A4_HZ if a4_hz is None else _option(a4_hz, "frequency", "--a4", low=A4_RANGE_HZ[0], high=A4_RANGE_HZ[1])
-    tail = None if tail_s is None else _option(tail_s, "time", "--tail", low=0.0, high=3600.0)
+    a4_field = Field("frequency", low=A4_RANGE_HZ[0], high=A4_RANGE_HZ[1])
+    a4 = A4_HZ if a4_hz is None else convert_option(a4_field, a4_hz, "--a4")
+    tail = None if tail_s is None else convert_option(Field("time", low=0.0, high=3600.0), tail_s, "--tail")
     song = read_midi(song_path)
     chmap, order, patches, settings = _setup(patch, map_file, sample_rate, bit_depth)
     rate, bits, output = settings["sample_rate"], settings["bit_depth"], Path(output)
     inputs = (song_path, patch, map_file, *order)  # every file read: the output may be none of them
     check_output_path(output, bits, inputs=inputs, make_folder=make_folder)
-    _check_sample_rate(rate, sample_rate is not None, chmap if map_file is not None else patches[0])
     performance = perform(song, sample_rate=rate)
     if not performance.notes:
         raise InputFileError(f"no notes to play ({len(song.track_names)} track(s), {len(song.events)} "

@@ -10,7 +10,7 @@ import difflib
 import math
 from dataclasses import dataclass, field, replace
 
-from .errors import PatchError
+from .errors import COMMAND_LINE, PatchError
 from .excitation import EXCITATIONS
 from .materials import MATERIALS, Material
 from .resonators import (
@@ -20,7 +20,7 @@ from .resonators import (
     resonator_module,
     retune_spec,
 )
-from .schema import Field, Section, check_keys, convert, read_section
+from .schema import Field, Section, check_keys, convert, convert_option, read_section
 from .units import short_repr
 from .yamlio import LineDict, load_yaml_file, load_yaml_text
 
@@ -387,21 +387,18 @@ def _apply_overrides(mapping, overrides, file):
             mapping[section_name] = section
         if key == "pitch" and section_name == "resonator":
             try:
-                replaced = getattr(resonator_module(section.get("type")), "PITCH_REPLACES", ("tension",))
-            except (ImportError, KeyError):
+                replaced = resonator_module(section.get("type")).PITCH_REPLACES
+            except (ImportError, KeyError):  # no or unknown type: the loader says so next
                 replaced = ()
             for other in replaced:
                 section.pop(other, None)
         section[key] = value
         if hasattr(section, "lines"):
             section.lines[key] = None
-        try:
-            if dotted.startswith("render.") and key in _RENDER_FIELDS:
-                convert(_RENDER_FIELDS[key], value)
-            elif dotted == "resonator.pitch":
-                convert(Field("pitch", positive=True), value)
-        except ValueError as error:
-            raise PatchError(str(error), file="command line", key=option) from None
+        if dotted.startswith("render.") and key in _RENDER_FIELDS:
+            convert_option(_RENDER_FIELDS[key], value, option)
+        elif dotted == "resonator.pitch":
+            convert_option(Field("pitch", positive=True), value, option)
     return mapping
 
 
@@ -427,7 +424,7 @@ def _check_size(patch, overrides):
     if need > MEMORY_LIMIT_BYTES:
         for key in ("render.duration", "render.sample_rate", "render.max_modes"):
             if key in overrides:
-                file, line, name = "command line", None, overrides[key][1]
+                file, line, name = COMMAND_LINE, None, overrides[key][1]
                 break
         else:
             file, line, name = patch.source, patch.lines.get("render.duration"), "render.duration"

@@ -21,10 +21,10 @@ import math
 import re
 from dataclasses import dataclass
 
-from .errors import PatchError
+from .errors import PatchError, option_error
 from .units import UNITS, parse_pitch, parse_quantity, short_repr
 
-__all__ = ["Field", "Section", "read_section", "check_keys", "convert", "KIND_BOUNDS", "SLUG"]
+__all__ = ["Field", "Section", "read_section", "check_keys", "convert", "convert_option", "KIND_BOUNDS", "SLUG"]
 
 SLUG = re.compile(r"^[A-Za-z0-9][A-Za-z0-9_-]{0,79}$")
 
@@ -282,6 +282,19 @@ def convert(field, value):
     return _check_number(field, number, value)
 
 
+def convert_option(field, value, option):
+    """:func:`convert` for a command-line value: errors name `option` (``command line: --x: ...``)."""
+    try:
+        return convert(field, value)
+    except ValueError as error:
+        raise option_error(str(error), option) from None
+
+
+def _unit_kind(kind):
+    """The unit kind whose units and range a field kind uses (pitches are frequencies)."""
+    return "frequency" if kind == "pitch" else kind
+
+
 def _check_number(field, number, value):
     """`number` (SI) checked against `field`'s sign, range and wholeness."""
     got = _got(field, number, value)
@@ -320,7 +333,7 @@ def _got(field, number, value):
 
 def _kind_low(field):
     """The kind's lower bound (SI), or -inf."""
-    low = KIND_BOUNDS.get("frequency" if field.kind == "pitch" else field.kind, (None, None))[0]
+    low = KIND_BOUNDS.get(_unit_kind(field.kind), (None, None))[0]
     return -math.inf if low is None else low
 
 
@@ -331,7 +344,7 @@ def _zero_ok(field):
 
 def _bounds(field):
     """Effective (low, high): the kind's physical range narrowed by the field's own."""
-    low, high = KIND_BOUNDS.get("frequency" if field.kind == "pitch" else field.kind, (None, None))
+    low, high = KIND_BOUNDS.get(_unit_kind(field.kind), (None, None))
     if field.low is not None:
         low = field.low if low is None else max(low, field.low)
     if field.high is not None:
@@ -364,7 +377,7 @@ def _range_hint(field):
     span = _range_text(field, unit=False)
     if span:
         parts.append(span)
-    units = UNITS.get("frequency" if field.kind == "pitch" else field.kind)
+    units = UNITS.get(_unit_kind(field.kind))
     if units:
         parts.append(f"units {', '.join(units)}")
     return f" ({'; '.join(parts)})" if parts else ""
@@ -372,7 +385,7 @@ def _range_hint(field):
 
 def _unit(kind):
     """' <SI unit>' of a unit kind (pitches are in Hz), '' for plain numbers."""
-    units = UNITS.get("frequency" if kind == "pitch" else kind)
+    units = UNITS.get(_unit_kind(kind))
     if units:
         return " " + next(iter(units))
     return ""
