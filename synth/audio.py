@@ -207,9 +207,8 @@ class atomic_output:
     None, a RenderError.
     """
 
-    def __init__(self, path, suffix=None, *, key=None):
+    def __init__(self, path, *, key=None):
         self.path = Path(path)
-        self.suffix = suffix if suffix is not None else self.path.suffix
         self.key = key
         self.tmp = None
 
@@ -228,7 +227,7 @@ class atomic_output:
 
     def __enter__(self):
         try:
-            handle, name = tempfile.mkstemp(prefix=f".{self.path.stem}.", suffix=".part" + self.suffix, dir=self.path.parent)
+            handle, name = tempfile.mkstemp(prefix=f".{self.path.stem}.", suffix=".part" + self.path.suffix, dir=self.path.parent)
             os.close(handle)
         except OSError as error:
             raise self._error(error) from None

@@ -48,6 +48,7 @@ from pathlib import Path
 import numpy as np
 
 from .audio import SUBTYPES, atomic_output, normalise, peak_dbfs, quantise
+from .damping import LN1000
 from .engine import render_modes
 from .errors import ModalError, PatchError, RenderError
 from .executors import backend, default_workers
@@ -67,7 +68,6 @@ __all__ = ["LibraryResult", "build_library", "summary_lines", "default_workers",
 
 PEAK_PREFIX_S = 0.25  # s, first span rendered when measuring a job's peak (doubled until exact)
 MANIFEST_INTERVAL_S = 30.0  # s, the manifest is also rewritten this often during a long run
-LN_1000 = math.log(1000.0)  # amplitude ratio of 60 dB, as ln
 
 # ---------------------------------------------------------------------------
 # Work done in the workers (or inline): pure functions of the task.
@@ -100,7 +100,7 @@ def _measure_peak(patch):
         if len(samples) >= n_total:
             return peak
         later = len(samples) / sample_rate  # s, the first sample not rendered
-        bound = float(np.sum(np.abs(amplitude) * np.exp(-LN_1000 * later / t60)))
+        bound = float(np.sum(np.abs(amplitude) * np.exp(-LN1000 * later / t60)))
         if bound <= peak:
             return peak
         span *= 2.0

@@ -43,13 +43,14 @@ import threading
 
 import numpy as np
 
+from .damping import LN1000
+
 __all__ = [
     "DEFAULT_FLOOR",
     "MIN_ENVELOPE",
     "render_modes",
 ]
 
-LN_1000 = math.log(1000.0)  # dimensionless: ln of the amplitude ratio of 60 dB
 DEFAULT_FLOOR = 1e-7  # dimensionless, fraction of sum|a_m| (-140 dB); total skip error bound
 MIN_ENVELOPE = 1e-20  # amplitude units (absolute); modes below are always skipped
 FACTOR_FLUSH = 1e-8  # dimensionless; power-table magnitudes below this become 0
@@ -135,7 +136,7 @@ def _exponents(frequency_hz, t60_s, sample_rate):
     sigma_m = ln(1000) / (T60_m fs) [1/sample], omega_m = 2 pi f_m / fs [rad/sample].
     """
     with np.errstate(divide="ignore", over="ignore"):  # T60 * fs may underflow to 0
-        sigma = np.minimum(LN_1000 / (t60_s * sample_rate), MAX_DECAY)  # T60 = inf: 0
+        sigma = np.minimum(LN1000 / (t60_s * sample_rate), MAX_DECAY)  # T60 = inf: 0
     omega = (2.0 * np.pi / sample_rate) * frequency_hz
     return sigma, omega
 

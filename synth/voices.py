@@ -38,7 +38,9 @@ from .audio import (
     quantise,
     whole_sample_rate,
 )
+from .damping import LN1000
 from .engine import render_modes
+from .modes import frozen_array
 from .pipeline import partial_table
 from .units import A4_HZ
 from .voicing import voice_patch
@@ -57,7 +59,6 @@ __all__ = [
     "write_song",
 ]
 
-LN_1000 = math.log(1000.0)  # dimensionless: ln of the amplitude ratio of 60 dB
 DECAY_DB = 100.0  # dB below its start at which a voice stops being rendered
 MAX_SEGMENT_SAMPLES = 1 << 16  # samples; longest single engine call (bounds working memory)
 BEND_STEP_S = 0.002  # s; pitch-bend changes are placed on a grid of this step
@@ -89,13 +90,8 @@ class Tone:
     def from_table(cls, table):
         """The audible modes of a :class:`~synth.modes.PartialTable`."""
         keep = table.amplitude > 0
-
-        def frozen(values):
-            array = np.array(values[keep], dtype=np.float64)
-            array.flags.writeable = False
-            return array
-
-        return cls(frozen(table.frequency_hz), frozen(table.amplitude), frozen(table.phase), frozen(table.t60_s),
+        return cls(*(frozen_array(values[keep]) for values in (table.frequency_hz, table.amplitude, table.phase,
+                                                                 table.t60_s)),
                    float(table.fundamental_hz), tuple(table.warnings))
 
 
@@ -172,7 +168,7 @@ def pan_gains(pan):
 
 def _sigma(t60_s, sample_rate):
     """Per-sample decay rate (nepers per sample) of each T60 (s)."""
-    return LN_1000 / (np.asarray(t60_s, dtype=np.float64) * sample_rate)
+    return LN1000 / (np.asarray(t60_s, dtype=np.float64) * sample_rate)
 
 
 def _envelope(abs_amp, sigma, n):

@@ -12,8 +12,6 @@ walks it).
 """
 from __future__ import annotations
 
-from pathlib import Path
-
 import yaml
 
 from .errors import InputFileError
@@ -42,7 +40,7 @@ class _LineLoader(yaml.SafeLoader):
 
 
 class _KeyError(yaml.constructor.ConstructorError):
-    """A mapping key that is not a plain name (reported without "YAML syntax error")."""
+    """A mapping key that is not a plain name, or a duplicate (reported without "YAML syntax error")."""
 
 
 def _construct_mapping(loader, node):
@@ -60,8 +58,8 @@ def _construct_mapping(loader, node):
         if isinstance(key, bool) or not isinstance(key, (str, int)):
             raise _KeyError(None, None, _key_problem(key, key_node), key_node.start_mark)
         if key in mapping:
-            raise yaml.constructor.ConstructorError(
-                None, None, f"duplicate key {key!r}", key_node.start_mark
+            raise _KeyError(
+                None, None, f"duplicate key {key!r}: each key may appear only once in a section", key_node.start_mark
             )
         mapping[key] = loader.construct_object(value_node, deep=True)
         mapping.lines[key] = key_node.start_mark.line + 1
@@ -107,8 +105,6 @@ def load_yaml_text(text, *, file="<text>"):
         mark = getattr(error, "problem_mark", None) or getattr(error, "context_mark", None)
         line = mark.line + 1 if mark is not None else None
         problem = getattr(error, "problem", None) or str(error).splitlines()[0]
-        if problem.startswith("duplicate key"):
-            raise InputFileError(f"{problem}: each key may appear only once in a section", file=file, line=line) from None
         if isinstance(error, _KeyError):
             raise InputFileError(problem, file=file, line=line) from None
         raise InputFileError(f"YAML syntax error: {problem}", file=file, line=line) from None
@@ -167,8 +163,6 @@ def _check_shape(data, file):
 def load_yaml_file(path):
     """Read and parse the YAML file at `path` (errors name the file, and the line where known)."""
     file = str(path)
-    if Path(path).is_dir():
-        raise InputFileError("is a folder, not a file: give the YAML file inside it", file=file)
     try:
         with open(path, "rb") as handle:
             data = handle.read()

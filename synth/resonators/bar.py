@@ -97,7 +97,7 @@ FE_MAX_MODES = 60
 #: cross-section dimension (our limit: shorter pieces are blocks or plates,
 #: where one-dimensional bar theory does not hold).
 MIN_LENGTH_RATIO = 2.0
-#: Timoshenko shifts larger than this (cents) are called out in a warning.
+#: Timoshenko shifts larger than this (cents) are called out in the report (shear_correction).
 TIMOSHENKO_NOTE_CENTS = 5.0
 #: Shear coefficient of a rectangular section (Timoshenko's 5/6).
 RECTANGLE_KAPPA = 5.0 / 6.0
