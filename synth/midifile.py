@@ -257,7 +257,7 @@ def read_midi(path):
                                 "format 0 or 1 file")
     if fmt not in (0, 1):
         raise _file_error(file, f"unknown MIDI file format {fmt} (allowed: 0, 1)")
-    events, names, end_tick, tempos = [], [], 0, []
+    events, names, end_tick = [], [], 0
     for number, (start, end) in enumerate(chunks, start=1):
         _check_track(data, start, end, number, file)
         tick, name = 0, None
