@@ -1,10 +1,12 @@
 """ModeSet and PartialTable: what a resonator computes and what gets rendered.
 
-A resonator module returns a :class:`ModeSet` (frequencies, labels, mode-shape
-values at the excitation and pickup points, extra per-mode columns).  The
-pipeline weights it into a :class:`PartialTable` (amplitude, phase and T60 of
-every mode), which the engine renders and the report prints as text, JSON or
-CSV.
+A resonator module solves an object once into a :class:`Solution` (frequencies,
+labels, report columns and a mode-shape function: everything that does not
+depend on where the object is excited or heard), which
+:meth:`Solution.place` turns into a :class:`ModeSet` (the mode-shape values
+at the excitation and pickup points).  The pipeline weights a ModeSet into a
+:class:`PartialTable` (amplitude, phase and T60 of every mode), which the
+engine renders and the report prints as text, JSON or CSV.
 """
 from __future__ import annotations
 
@@ -16,7 +18,16 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
-__all__ = ["ModeSet", "PartialTable", "frozen_array", "table_to_dict", "table_to_text", "table_to_csv"]
+__all__ = [
+    "Solution",
+    "ModeSet",
+    "PartialTable",
+    "EvenNodes",
+    "frozen_array",
+    "table_to_dict",
+    "table_to_text",
+    "table_to_csv",
+]
 
 #: Shown under any stress figure: design figures are previews.
 PREVIEW_NOTE = "stress figures are previews: defer to the maker's data, local codes and qualified practice"
@@ -30,6 +41,113 @@ def frozen_array(values, dtype=float):
     array = np.array(values, dtype=dtype).reshape(-1)
     array.flags.writeable = False
     return array
+
+
+class _EvenlySpaced:
+    """The nodes ``j / n``, j = 0..n, of one mode, as a sequence built on demand."""
+
+    __slots__ = ("n",)
+
+    def __init__(self, n):
+        self.n = int(n)
+
+    def __len__(self):
+        return self.n + 1
+
+    def __getitem__(self, index):
+        if isinstance(index, slice):
+            return tuple(j / self.n for j in range(len(self))[index])
+        return range(len(self))[index] / self.n
+
+    def __iter__(self):
+        return (j / self.n for j in range(len(self)))
+
+
+class EvenNodes:
+    """A report column of evenly spaced nodes (fractions ``j / n``, ends included).
+
+    Mode ``i`` with whole-number order ``n_i`` (a string's harmonic number) has
+    nodes at ``j / n_i``, ``j = 0 .. n_i``.  The lists are never built for the
+    whole column: a table of M modes would hold M**2 / 2 numbers.  An item is
+    a lazy sequence, so the text report shows its first few values in
+    constant time; the JSON and CSV forms leave the column out
+    (:attr:`report_only`) and give the spacing instead (a ``node_spacing``
+    column of the resonator).
+    """
+
+    report_only = True
+
+    def __init__(self, orders):
+        self.orders = np.asarray(orders, dtype=np.int64)
+
+    def __len__(self):
+        return len(self.orders)
+
+    def __getitem__(self, i):
+        return _EvenlySpaced(self.orders[i])
+
+    def __iter__(self):
+        return (_EvenlySpaced(n) for n in self.orders)
+
+    def take(self, index):
+        """The column of the modes at `index` (an index array)."""
+        return EvenNodes(self.orders[index])
+
+
+def _take(values, index):
+    """Column `values` at the positions in `index` (lazy columns stay lazy)."""
+    take = getattr(values, "take", None)
+    if take is not None and not isinstance(values, np.ndarray):
+        return take(index)
+    return tuple(values[i] for i in index)
+
+
+@dataclass(frozen=True, eq=False)
+class Solution:
+    """The solved modes of one object, before it is excited or heard anywhere.
+
+    Everything here depends only on the object (the resonator spec and the
+    number of modes asked for), so it is computed once per object and shared
+    by every render of it (:mod:`synth.solvecache`); :meth:`place` evaluates
+    the mode shapes at an excitation and a pickup point.
+
+    Attributes
+    ----------
+    resonator : str
+    frequency_hz : ndarray [shape=(M,)], Hz
+        Ascending.
+    labels : tuple of str [len M]
+    shape : callable
+        ``shape(position) -> ndarray [shape=(M,)]``: every mode's shape value
+        at a position in the resonator's coordinates (a fraction, ``(x, y)``
+        or ``(radius fraction, angle rad)``), scaled to a common modal mass.
+    columns, parameters, warnings
+        As in :class:`ModeSet`.
+    """
+
+    resonator: str
+    frequency_hz: np.ndarray
+    labels: tuple
+    shape: object
+    columns: dict = field(default_factory=dict)
+    parameters: dict = field(default_factory=dict)
+    warnings: tuple = ()
+
+    def place(self, excitation_position, pickup_position):
+        """The :class:`ModeSet` heard at `pickup_position` (None: every mode 1) when excited at `excitation_position`."""
+        n = len(self.frequency_hz)
+        excitation = self.shape(excitation_position)
+        pickup = np.ones(n) if pickup_position is None else self.shape(pickup_position)
+        return ModeSet(
+            resonator=self.resonator,
+            frequency_hz=self.frequency_hz,
+            labels=self.labels,
+            excitation_shape=frozen_array(excitation),
+            pickup_shape=frozen_array(pickup),
+            columns=self.columns,
+            parameters=self.parameters,
+            warnings=self.warnings,
+        )
 
 
 @dataclass(frozen=True)
@@ -86,8 +204,28 @@ class ModeSet:
             labels=tuple(self.labels[i] for i in index),
             excitation_shape=frozen_array(self.excitation_shape[index]),
             pickup_shape=frozen_array(self.pickup_shape[index]),
-            columns={k: tuple(v[i] for i in index) for k, v in self.columns.items()},
+            columns={k: _take(v, index) for k, v in self.columns.items()},
             parameters=dict(self.parameters),
+            warnings=self.warnings,
+        )
+
+    def detuned(self, cents):
+        """This ModeSet with every frequency moved by `cents` (shapes and columns unchanged).
+
+        A small retuning of the whole object (a round robin's detune): every
+        partial moves by the same interval, so the ratios stay as solved.
+        """
+        if cents == 0.0:
+            return self
+        ratio = 2.0 ** (cents / 1200.0)
+        return ModeSet(
+            resonator=self.resonator,
+            frequency_hz=frozen_array(self.frequency_hz * ratio),
+            labels=self.labels,
+            excitation_shape=self.excitation_shape,
+            pickup_shape=self.pickup_shape,
+            columns=self.columns,
+            parameters={**self.parameters, "detune_cents": float(cents)},
             warnings=self.warnings,
         )
 
@@ -157,6 +295,7 @@ def table_to_dict(table):
     """The partial table as the JSON object described in DESIGN.md."""
     modes = []
     ratio, cents = table.ratio, table.cents_from_harmonic
+    columns = {k: v for k, v in table.columns.items() if not getattr(v, "report_only", False)}
     for i in range(len(table.frequency_hz)):
         mode = {
             "index": i + 1,
@@ -169,7 +308,7 @@ def table_to_dict(table):
             "amplitude": float(table.amplitude[i]),
             "phase_rad": float(table.phase[i]),
         }
-        for key, values in table.columns.items():
+        for key, values in columns.items():
             mode[key] = values[i]
         modes.append(mode)
     return _clean(
@@ -264,10 +403,10 @@ def table_to_text(table, *, max_rows=None):
             columns.append((header, key, fmt))
     rows = []
     modes = data["modes"] if max_rows is None else data["modes"][:max_rows]
-    for mode in modes:
+    for i, mode in enumerate(modes):
         row = []
         for _header, key, fmt in columns:
-            value = mode.get(key)
+            value = _clean(table.columns[key][i]) if key in table.columns else mode.get(key)
             if value is None:
                 row.append("null" if key == "level_db" else "")
             elif fmt is None:

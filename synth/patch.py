@@ -18,8 +18,8 @@ from .resonators import (
     SpecError,
     UnreachablePitch,
     resonator_module,
-    retune_spec,
 )
+from .solvecache import DEFAULT_CACHE
 from .schema import Field, Section, check_keys, convert, convert_option, read_section
 from .units import short_repr
 from .yamlio import LineDict, load_yaml_file, load_yaml_text
@@ -463,10 +463,12 @@ def patch_from_text(text, *, file="<text>", overrides=None):
     return patch_from_mapping(load_yaml_text(text, file=file), file=file, overrides=overrides)
 
 
-def retune(patch, pitch_hz):
+def retune(patch, pitch_hz, *, cache=None):
     """A copy of `patch` whose lowest mode sounds at `pitch_hz`.
 
-    Moves the parameter a maker would move (tension for a string).
+    Moves the parameter a maker would move (tension for a string).  The
+    retuned spec is computed once per (spec, pitch) in `cache` (default: the
+    process-wide :data:`synth.solvecache.DEFAULT_CACHE`).
 
     Raises
     ------
@@ -476,6 +478,6 @@ def retune(patch, pitch_hz):
     if not (math.isfinite(pitch_hz) and pitch_hz > 0):
         raise ValueError(f"pitch_hz={pitch_hz!r} must be > 0")
     try:
-        return replace(patch, resonator=retune_spec(patch.resonator, pitch_hz))
+        return replace(patch, resonator=(DEFAULT_CACHE if cache is None else cache).retune(patch.resonator, pitch_hz))
     except UnreachablePitch as error:
         raise patch.error("resonator.pitch", str(error)) from None

@@ -1,6 +1,9 @@
 """Patch -> ModeSet -> PartialTable -> signal: the one-way data flow.
 
-These functions glue the rooms together; they do no file work.
+These functions glue the rooms together; they do no file work.  The
+resonator's modes come from a :class:`~synth.solvecache.SolveCache` (solved
+once per object); everything after -- positions, detune, weights, damping --
+is applied to the solved modes.
 """
 from __future__ import annotations
 
@@ -13,7 +16,8 @@ from .engine import render_modes
 from .excitation import excitation_weights
 from .modes import NODE_TOLERANCE, PartialTable, frozen_array
 from .patch import MAX_SAMPLE_RATE
-from .resonators import UnreachablePitch, resonator_modes, resonator_name
+from .resonators import UnreachablePitch, resonator_name
+from .solvecache import DEFAULT_CACHE
 
 __all__ = ["mode_set", "partial_table", "render_patch"]
 
@@ -26,33 +30,41 @@ def _coordinate(point):
     return point.values
 
 
-def mode_set(patch):
-    """The resonator's ModeSet for `patch` (all `max_modes`, before Nyquist)."""
+def mode_set(patch, *, cache=None):
+    """The resonator's ModeSet for `patch` (all `max_modes`, before Nyquist).
+
+    The modes are solved once per resonator spec in `cache` (default: the
+    process-wide :data:`~synth.solvecache.DEFAULT_CACHE`) and placed at the
+    patch's excitation and pickup points.
+    """
+    cache = DEFAULT_CACHE if cache is None else cache
     try:
-        return resonator_modes(
-            patch.resonator,
-            excitation_position=_coordinate(patch.excitation.position),
-            pickup_position=_coordinate(patch.pickup.position),
-            n_modes=patch.render.max_modes,
-        )
+        solution = cache.solve(patch.resonator, patch.render.max_modes)
     except UnreachablePitch as error:
         raise patch.error("resonator.pitch", str(error)) from None
+    return solution.place(_coordinate(patch.excitation.position), _coordinate(patch.pickup.position))
 
 
-def partial_table(patch, *, modes=None):
+def partial_table(patch, *, modes=None, detune_cents=0.0, cache=None):
     """The partials `patch` renders: weighted, damped, below Nyquist.
 
     Parameters
     ----------
     patch : Patch
     modes : ModeSet or None
-        Precomputed modes of `patch.resonator` (saves a solve when retuning).
+        Precomputed modes of `patch.resonator`.
+    detune_cents : float, cents
+        Moves every partial of the solved object by this interval before it
+        is weighted and damped (a round robin's detune: no new solve).
+    cache : SolveCache or None
+        Where the modes are solved (default: the process-wide cache).
 
     Returns
     -------
     PartialTable
     """
-    modes = mode_set(patch) if modes is None else modes
+    modes = mode_set(patch, cache=cache) if modes is None else modes
+    modes = modes.detuned(detune_cents)
     warnings = list(modes.warnings)
     nyquist = patch.render.sample_rate / 2.0
     keep = modes.frequency_hz < nyquist

@@ -37,7 +37,8 @@ def velocity_contact_time(contact_time, velocity):
     return contact_time * (REFERENCE_VELOCITY / float(velocity)) ** CONTACT_EXPONENT
 
 
-def voice_patch(patch, *, midi_note=None, pitch_hz=None, velocity=REFERENCE_VELOCITY, a4_hz=A4_HZ, detune_cents=0.0):
+def voice_patch(patch, *, midi_note=None, pitch_hz=None, velocity=REFERENCE_VELOCITY, a4_hz=A4_HZ, detune_cents=0.0,
+                cache=None):
     """`patch` retuned to a note and scaled for a velocity.
 
     Parameters
@@ -49,7 +50,11 @@ def voice_patch(patch, *, midi_note=None, pitch_hz=None, velocity=REFERENCE_VELO
     velocity : int, 1..127
     a4_hz : float, Hz
     detune_cents : float, cents
-        Added to the pitch.
+        Added to the pitch (the object is retuned to it; to move the
+        partials of the object as solved for the note instead, pass the
+        detune to :func:`synth.pipeline.partial_table`).
+    cache : SolveCache or None
+        Where the retune is computed (default: the process-wide cache).
 
     Returns
     -------
@@ -67,7 +72,7 @@ def voice_patch(patch, *, midi_note=None, pitch_hz=None, velocity=REFERENCE_VELO
     if pitch_hz is None and midi_note is not None:
         pitch_hz = float(midi_to_hz(midi_note, a4_hz=a4_hz))
     if pitch_hz is not None:
-        patch = retune(patch, pitch_hz * 2.0 ** (detune_cents / 1200.0))
+        patch = retune(patch, pitch_hz * 2.0 ** (detune_cents / 1200.0), cache=cache)
     excitation = replace(
         patch.excitation,
         strength=velocity_strength(patch.excitation.strength, velocity),

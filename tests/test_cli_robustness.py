@@ -75,13 +75,13 @@ MANY_MODES = textwrap.dedent(
       type: string
       material: music-wire
       length: 1.2 m
-      diameter: 0.3 mm
+      diameter: 0.1 mm
       pitch: 40 Hz
       ends: pinned
     render:
       duration: 0.2 s
       sample_rate: 96000
-      max_modes: 500
+      max_modes: 2000
     """
 )
 

@@ -44,10 +44,8 @@ def resonator_name(spec):
 
 
 def resonator_modes(spec, *, excitation_position, pickup_position, n_modes):
-    """The ModeSet of any resonator spec."""
-    return resonator_module(spec.TYPE).modes(
-        spec, excitation_position=excitation_position, pickup_position=pickup_position, n_modes=n_modes
-    )
+    """The ModeSet of any resonator spec (solved afresh; the pipeline uses :mod:`synth.solvecache`)."""
+    return resonator_module(spec.TYPE).solve(spec, n_modes).place(excitation_position, pickup_position)
 
 
 def retune_spec(spec, pitch_hz):

@@ -35,7 +35,7 @@ from typing import ClassVar
 
 import numpy as np
 
-from ..modes import ModeSet, frozen_array
+from ..modes import Solution, frozen_array
 from ..schema import Field
 from .common import SpecError, UnreachablePitch
 
@@ -45,6 +45,7 @@ __all__ = [
     "build_spec",
     "position_style",
     "modes",
+    "solve",
     "retune",
     "air_column_modes",
     "speed_of_sound",
@@ -225,26 +226,22 @@ def _pressure_nodes(ends, harmonic, length, delta, l_eff):
     return tuple(float(x / length) for x in nodes if 0.0 <= x <= length)
 
 
-def air_column_modes(spec, *, excitation_position, pickup_position, n_modes):
-    """Pressure modes of a cylindrical pipe.
+def solve(spec, n_modes):
+    """Pressure modes of a cylindrical pipe, before it is excited or heard anywhere.
 
     Parameters
     ----------
     spec : AirColumnSpec
-    excitation_position : float in [0, 1]
-        Fraction of the physical length from the x = 0 end (closed end of a
-        closed-open pipe).
-    pickup_position : float in [0, 1] or None
-        As `excitation_position`; None weights every mode 1.
     n_modes : int >= 1
 
     Returns
     -------
-    ModeSet
-        Labels ``"n=1"``...; columns harmonic (odd only for closed-open),
-        wavelength_m and node_positions (pressure nodes inside the pipe,
-        fractions of the length); parameters speed of sound, end correction,
-        effective length, cut-on frequency.
+    Solution
+        Shapes at fractions of the physical length from the x = 0 end
+        (closed end of a closed-open pipe).  Labels ``"n=1"``...; columns
+        harmonic (odd only for closed-open), wavelength_m and node_positions
+        (pressure nodes inside the pipe, fractions of the length); parameters
+        speed of sound, end correction, effective length, cut-on frequency.
     """
     c = speed_of_sound(spec.temperature)
     delta = end_correction(spec.radius)
@@ -261,12 +258,6 @@ def air_column_modes(spec, *, excitation_position, pickup_position, n_modes):
             f"ka = {CROSS_MODE_KA:.4f}) left out: the pipe is not one-dimensional there"
         )
     n, harmonic, freq = n[keep], harmonic[keep], freq[keep]
-    x_exc = excitation_position * spec.length
-    exc = _pressure_shape(spec.ends, harmonic, x_exc, spec.length, delta, l_eff)
-    if pickup_position is None:
-        pick = np.ones(n.size)
-    else:
-        pick = _pressure_shape(spec.ends, harmonic, pickup_position * spec.length, spec.length, delta, l_eff)
     wavelength = c / freq
     columns = {
         "harmonic": tuple(int(h) for h in harmonic),
@@ -284,16 +275,29 @@ def air_column_modes(spec, *, excitation_position, pickup_position, n_modes):
         "effective_length_m": l_eff,
         "cross_mode_cut_on_hz": cutoff,
     }
-    return ModeSet(
+
+    def shape(position):
+        return _pressure_shape(spec.ends, harmonic, position * spec.length, spec.length, delta, l_eff)
+
+    return Solution(
         resonator="air-column",
         frequency_hz=frozen_array(freq),
         labels=tuple(f"n={k}" for k in n),
-        excitation_shape=frozen_array(exc),
-        pickup_shape=frozen_array(pick),
+        shape=shape,
         columns=columns,
         parameters=parameters,
         warnings=tuple(warnings),
     )
+
+
+def air_column_modes(spec, *, excitation_position, pickup_position, n_modes):
+    """Pressure modes of a pipe excited and heard at fractions of its length (see :func:`solve`).
+
+    Returns
+    -------
+    ModeSet
+    """
+    return solve(spec, n_modes).place(excitation_position, pickup_position)
 
 
 modes = air_column_modes

@@ -56,7 +56,7 @@ from typing import ClassVar
 import numpy as np
 from scipy.optimize import brentq
 
-from ..modes import ModeSet, frozen_array
+from ..modes import Solution, frozen_array
 from ..schema import Field, convert
 from . import bar_fe
 from .common import SpecError, UnreachablePitch
@@ -70,6 +70,7 @@ __all__ = [
     "build_spec",
     "position_style",
     "modes",
+    "solve",
     "retune",
     "bar_modes",
     "beam_roots",
@@ -512,28 +513,25 @@ def _warnings(spec, labels, frequency, shift, length, n_modes):
     return warnings
 
 
-def bar_modes(spec, *, excitation_position, pickup_position, n_modes):
-    """Bending modes of a bar.
+def solve(spec, n_modes):
+    """Bending modes of a bar, before it is struck or heard anywhere.
 
     Parameters
     ----------
     spec : BarSpec
-    excitation_position : float in [0, 1]
-        Fraction of the length from the first end.
-    pickup_position : float in [0, 1] or None
-        Fraction of the length; None weights every mode by 1.
     n_modes : int >= 1
         Most modes to compute (fewer if they would lie above
         :data:`MODE_CEILING_HZ`; free-free rigid-body modes are not counted).
 
     Returns
     -------
-    ModeSet
-        Labels ``B1``, ``B2``, ...; shapes scaled so that
-        ``integral rho A phi**2 dx`` is the bar's mass for every mode; columns
-        n_nodes, node_positions (fractions of the length, supported ends
-        included), nodes_m and, for Timoshenko theory, timoshenko_shift_cents
-        (the shift from thin-bar theory).
+    Solution
+        Positions are fractions of the length from the first end.  Labels
+        ``B1``, ``B2``, ...; shapes scaled so that ``integral rho A phi**2 dx``
+        is the bar's mass for every mode; columns n_nodes, node_positions
+        (fractions of the length, supported ends included), nodes_m and, for
+        Timoshenko theory, timoshenko_shift_cents (the shift from thin-bar
+        theory).
     """
     length = spec.length
     n = _count_below_ceiling(spec, length, n_modes)
@@ -549,10 +547,8 @@ def bar_modes(spec, *, excitation_position, pickup_position, n_modes):
     signs, nodes = bar_fe.signs_and_nodes(shape, n, spec.supports)
 
     def weights(position):
-        return signs * shape(np.array([position]))[0]
+        return (signs * shape(np.array([position]))[0])[:keep]
 
-    excitation = weights(excitation_position)[:keep]
-    pickup = np.ones(keep) if pickup_position is None else weights(pickup_position)[:keep]
     labels = tuple(f"B{m}" for m in range(1, keep + 1))
     frequency = frequency[:keep]
     shift = None if shift is None else shift[:keep]
@@ -594,16 +590,27 @@ def bar_modes(spec, *, excitation_position, pickup_position, n_modes):
     if spec.supports == "free-free":
         # Where to hang a free-free bar: the nodes of its first mode (Rossing [3]).
         parameters["suspension_points_m"] = [round(x * length, 5) for x in nodes[0]]
-    return ModeSet(
+    return Solution(
         resonator="bar",
         frequency_hz=frozen_array(frequency),
         labels=labels,
-        excitation_shape=frozen_array(excitation),
-        pickup_shape=frozen_array(pickup),
+        shape=weights,
         columns=columns,
         parameters=parameters,
         warnings=tuple(_warnings(spec, labels, frequency, shift, length, n_modes)),
     )
+
+
+def bar_modes(spec, *, excitation_position, pickup_position, n_modes):
+    """Bending modes of a bar struck and heard at fractions of its length (see :func:`solve`).
+
+    `pickup_position` None weights every mode by 1.
+
+    Returns
+    -------
+    ModeSet
+    """
+    return solve(spec, n_modes).place(excitation_position, pickup_position)
 
 
 modes = bar_modes

@@ -18,10 +18,18 @@ A resonator module ``synth/resonators/<name>.py`` provides
     ``"fraction"`` (a number 0..1 along the length), ``"xy"`` (``[x, y]``
     fractions), ``"polar"`` (``{radius: fraction, angle: degrees}``) or
     ``"none"`` (positions are not used).
+``solve(spec, n_modes) -> Solution``
+    Everything about the modes that depends only on the object: a
+    :class:`synth.modes.Solution` (or a
+    :class:`synth.resonators.outline.PairedSolution` for circular pairs),
+    whose ``place(excitation_position, pickup_position)`` gives the
+    :class:`synth.modes.ModeSet`.  Positions arrive as a float (fraction),
+    ``(x, y)`` or ``(radius_fraction, angle_rad)``; ``pickup_position`` may
+    be None (weight every mode 1).  Mode shapes are scaled to a common modal
+    mass.  Solutions are cached per spec (:mod:`synth.solvecache`), so
+    ``solve`` must be a pure function of its arguments.
 ``modes(spec, *, excitation_position, pickup_position, n_modes) -> ModeSet``
-    Positions arrive as a float (fraction), ``(x, y)`` or
-    ``(radius_fraction, angle_rad)``; ``pickup_position`` may be None (weight
-    every mode 1).  Mode shapes are scaled to a common modal mass.
+    ``solve(spec, n_modes).place(excitation_position, pickup_position)``.
 ``retune(spec, pitch_hz) -> spec``
     The spec with the parameter a maker would move changed so the lowest mode
     sounds at `pitch_hz` (raise :class:`UnreachablePitch` if it cannot).

@@ -45,10 +45,10 @@ from typing import ClassVar
 import numpy as np
 from scipy.special import jn_zeros, jv
 
-from ..modes import ModeSet, frozen_array
+from ..modes import Solution, frozen_array
 from ..schema import Field
 from .common import SpecError, UnreachablePitch, stress_warnings
-from .outline import check_outline, circle_rows, frame_angle
+from .outline import PairedSolution, check_outline
 
 __all__ = [
     "FIELDS",
@@ -56,6 +56,7 @@ __all__ = [
     "build_spec",
     "position_style",
     "modes",
+    "solve",
     "retune",
     "membrane_modes",
     "wave_speed",
@@ -293,37 +294,27 @@ def _zeros_below(m, bound):
     return zeros[zeros < bound]
 
 
-def _circle_modes(spec, speed, excitation, pickup, n_modes):
-    split = pickup is not None
-    frame = frame_angle(excitation, pickup)
-    entries, zeros = _circle_table(n_modes, split)
-    rows = [(*entries[i], o) for i, o in circle_rows([m for _, m, _ in entries], split, n_modes)]
-    j = np.array([r[0] for r in rows])
-    m = np.array([r[1] for r in rows])
-    n = np.array([r[2] for r in rows])
-    sine = np.array([r[3] == "sin" for r in rows])
+def _circle_pairs(spec, speed, n_modes):
+    """Per-pair frequencies, orders, labels, radial function and columns of a circle."""
+    entries, zeros = _circle_table(n_modes, False)  # enough pairs for n_modes rows either way
+    j = np.array([e[0] for e in entries])
+    m = np.array([e[1] for e in entries])
+    n = np.array([e[2] for e in entries])
     freq = j * speed / (2.0 * math.pi * spec.radius)
-    exc = _circle_shapes(m, j, sine, excitation[0], excitation[1] - frame)
-    pick = np.ones(len(rows)) if pickup is None else _circle_shapes(m, j, sine, pickup[0], pickup[1] - frame)
+    norm = np.abs(jv(m + 1, j))
+    root2 = np.where(m == 0, 1.0, math.sqrt(2.0))
+
+    def radial(radius_fraction):
+        return root2 * (jv(m, j * radius_fraction) / norm)
+
     columns = {
         "nodal_diameters": tuple(int(k) for k in m),
         "nodal_circles": tuple(int(k) - 1 for k in n),
         "nodal_lines": tuple(int(a + b) - 1 for a, b in zip(m, n)),
-        "orientation": tuple(r[3] for r in rows),
-        "nodal_circle_radii": tuple(tuple(float(z / r[0]) for z in zeros[r[1]][: r[2] - 1]) for r in rows),
+        "nodal_circle_radii": tuple(tuple(float(z / e[0]) for z in zeros[e[1]][: e[2] - 1]) for e in entries),
     }
-    labels = tuple(f"({r[1]},{r[2]})" for r in rows)
-    parameters = {"radius_m": spec.radius, "orientation_reference_deg": math.degrees(frame)}
-    return freq, exc, pick, labels, columns, parameters
-
-
-def _circle_shapes(m, j, sine, radius_fraction, angle):
-    """Mass-normalised shapes of many circular modes at one point (vectorised)."""
-    if radius_fraction >= 1.0:
-        return np.zeros(m.shape)  # the rim: an exact node of every mode
-    radial = jv(m, j * radius_fraction) / np.abs(jv(m + 1, j))
-    turn = np.where(sine, np.sin(m * angle), np.cos(m * angle))
-    return np.where(m == 0, radial, math.sqrt(2.0) * radial * turn)
+    labels = tuple(f"({e[1]},{e[2]})" for e in entries)
+    return freq, m, labels, radial, columns
 
 
 def _rectangle_table(n_rows, width, height):
@@ -341,49 +332,54 @@ def _rectangle_table(n_rows, width, height):
         bound *= _GROW
 
 
-def _rectangle_modes(spec, speed, excitation, pickup, n_modes):
+def _rectangle_solution(spec, speed, n_modes):
     rows = _rectangle_table(n_modes, spec.width, spec.height)
-    freq = [0.5 * speed * k for k, _, _ in rows]
-    exc = [float(rectangle_mode_shape(m, n, *excitation)) for _, m, n in rows]
-    pick = [1.0 if pickup is None else float(rectangle_mode_shape(m, n, *pickup)) for _, m, n in rows]
+    freq = np.array([0.5 * speed * k for k, _, _ in rows])
+    m = np.array([r[1] for r in rows])
+    n = np.array([r[2] for r in rows])
+
+    def shape(point):
+        return 2.0 * _edge_sine(m, point[0]) * _edge_sine(n, point[1])
+
     columns = {
-        "nodal_lines_x": tuple(m - 1 for _, m, _ in rows),
-        "nodal_lines_y": tuple(n - 1 for _, _, n in rows),
-        "nodal_lines": tuple(m + n - 2 for _, m, n in rows),
+        "nodal_lines_x": tuple(int(a) - 1 for a in m),
+        "nodal_lines_y": tuple(int(b) - 1 for b in n),
+        "nodal_lines": tuple(int(a + b) - 2 for a, b in zip(m, n)),
     }
-    labels = tuple(f"({m},{n})" for _, m, n in rows)
-    parameters = {"width_m": spec.width, "height_m": spec.height}
-    return freq, exc, pick, labels, columns, parameters
+    labels = tuple(f"({a},{b})" for _, a, b in rows)
+    return freq, labels, shape, columns
 
 
-def membrane_modes(spec, *, excitation_position, pickup_position, n_modes):
-    """Modes of a circular or rectangular membrane with a fixed rim.
+def solve(spec, n_modes):
+    """Modes of a circular or rectangular membrane with a fixed rim, before it is excited or heard.
 
     Parameters
     ----------
     spec : MembraneSpec
-    excitation_position : tuple
-        ``(radius fraction, angle rad)`` for a circle, ``(x, y)`` fractions of
-        width and height for a rectangle.
-    pickup_position : tuple or None
-        As `excitation_position`; None weights every mode 1 (and merges the
-        orientations of circular pairs).
     n_modes : int >= 1
+        Rows a placement lists (a circular cos/sin pair is two rows when a
+        pickup is given, one without).
 
     Returns
     -------
-    ModeSet
-        Labels ``"(m,n)"``.  Circle columns: nodal_diameters (m),
-        nodal_circles (n - 1, rim not counted), nodal_lines (m + n - 1),
-        orientation ("", "cos", "sin" or "pair") and nodal_circle_radii.
-        Rectangle columns: nodal_lines_x (m - 1), nodal_lines_y (n - 1),
-        nodal_lines (m + n - 2).  Parameters include the tension (solved where
-        a pitch was given) and the wave speed.
+    PairedSolution (circle) or Solution (rectangle)
+        Positions: ``(radius fraction, angle rad)`` for a circle, ``(x, y)``
+        fractions of width and height for a rectangle.  Labels ``"(m,n)"``.
+        Circle columns: nodal_diameters (m), nodal_circles (n - 1, rim not
+        counted), nodal_lines (m + n - 1), orientation ("", "cos", "sin" or
+        "pair") and nodal_circle_radii.  Rectangle columns: nodal_lines_x
+        (m - 1), nodal_lines_y (n - 1), nodal_lines (m + n - 2).  Parameters
+        include the tension (solved where a pitch was given) and the wave
+        speed.
     """
     tension = solve_tension(spec, spec.pitch_hz) if spec.tension is None else spec.tension
     speed = wave_speed(tension, spec.areal_density)
-    build = _circle_modes if spec.shape == "circle" else _rectangle_modes
-    freq, exc, pick, labels, columns, geometry = build(spec, speed, excitation_position, pickup_position, n_modes)
+    if spec.shape == "circle":
+        freq, orders, labels, radial, columns = _circle_pairs(spec, speed, n_modes)
+        geometry = {"radius_m": spec.radius, "orientation_reference_deg": 0.0}
+    else:
+        freq, labels, shape, columns = _rectangle_solution(spec, speed, n_modes)
+        geometry = {"width_m": spec.width, "height_m": spec.height}
     parameters = {
         "shape": spec.shape,
         **geometry,
@@ -394,7 +390,7 @@ def membrane_modes(spec, *, excitation_position, pickup_position, n_modes):
         "tension_solved": spec.tension is None,
         "wave_speed_m_s": speed,
     }
-    warnings = []
+    warnings, warn_above = [], ()
     if spec.thickness is None:
         del parameters["thickness_m"]
     else:
@@ -404,19 +400,46 @@ def membrane_modes(spec, *, excitation_position, pickup_position, n_modes):
             parameters["tensile_strength_pa"] = spec.tensile_strength
             parameters["stress_percent_of_strength"] = 100.0 * stress / spec.tensile_strength
         warnings += stress_warnings(stress, spec.tensile_strength, "membrane")
-        note = _bending_note(spec, tension, speed, freq)
-        if note:
-            warnings.append(note)
-    return ModeSet(
+        note = _bending_note(spec, tension, speed)
+        if note is not None:
+            warn_above = (note,)
+    if spec.shape == "circle":
+        return PairedSolution(
+            resonator="membrane",
+            frequency_hz=frozen_array(freq),
+            orders=orders,
+            labels=labels,
+            radial=radial,
+            n_rows=n_modes,
+            columns=columns,
+            parameters=parameters,
+            warnings=tuple(warnings),
+            warn_above=warn_above,
+        )
+    if warn_above and freq[-1] > warn_above[0][0]:
+        warnings.append(warn_above[0][1])
+    return Solution(
         resonator="membrane",
         frequency_hz=frozen_array(freq),
         labels=labels,
-        excitation_shape=frozen_array(exc),
-        pickup_shape=frozen_array(pick),
+        shape=shape,
         columns=columns,
         parameters=parameters,
         warnings=tuple(warnings),
     )
+
+
+def membrane_modes(spec, *, excitation_position, pickup_position, n_modes):
+    """Modes of a membrane excited and heard at two points (see :func:`solve`).
+
+    `pickup_position` None weights every mode 1 (and merges the orientations
+    of circular pairs).
+
+    Returns
+    -------
+    ModeSet
+    """
+    return solve(spec, n_modes).place(excitation_position, pickup_position)
 
 
 #: Bending stiffness raises a mode by about (D k^2 / T) / 2 of its frequency;
@@ -424,21 +447,22 @@ def membrane_modes(spec, *, excitation_position, pickup_position, n_modes):
 BENDING_NOTE_RATIO = 0.01
 
 
-def _bending_note(spec, tension, speed, freq):
-    """A warning when the (unmodelled) bending stiffness would shift modes > ~9 cents.
+def _bending_note(spec, tension, speed):
+    """(onset Hz, warning) for the (unmodelled) bending stiffness, or None.
+
+    The warning applies when modes above the onset are listed: there bending
+    would shift them more than ~9 cents.
 
     For a membrane with bending stiffness D = E h^3 / (12 (1 - nu^2)),
     sigma omega^2 = T k^2 + D k^4 (exact for a pinned rectangle, close for a
     circle), so modes are raised by about D k^2 / (2 T) of their frequency.
     """
-    if not spec.youngs_modulus or spec.poisson_ratio is None or len(freq) == 0:
+    if not spec.youngs_modulus or spec.poisson_ratio is None:
         return None
     rigidity = spec.youngs_modulus * spec.thickness**3 / (12.0 * (1.0 - spec.poisson_ratio**2))
     k = math.sqrt(BENDING_NOTE_RATIO * tension / rigidity)  # rad/m where D k^2 / T = 0.01
     onset_hz = speed * k / (2.0 * math.pi)
-    if freq[-1] <= onset_hz:
-        return None
-    return (
+    return onset_hz, (
         f"bending stiffness of the {spec.thickness * 1e3:.3g} mm {spec.material} is not modelled: "
         f"modes above about {onset_hz:.0f} Hz would sound more than 9 cents sharper on a real membrane"
     )

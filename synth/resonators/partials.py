@@ -25,7 +25,7 @@ from typing import ClassVar
 
 import numpy as np
 
-from ..modes import ModeSet, frozen_array
+from ..modes import Solution, frozen_array
 from ..schema import Field
 from ..units import parse_quantity
 from .common import SpecError, UnreachablePitch
@@ -36,6 +36,7 @@ __all__ = [
     "build_spec",
     "position_style",
     "modes",
+    "solve",
     "retune",
     "partials_modes",
     "MAX_PARTIALS",
@@ -154,22 +155,21 @@ def retune(spec, pitch_hz):
     return replace(spec, reference_hz=pitch_hz / min(spec.ratios), pitch_hz=pitch_hz)
 
 
-def partials_modes(spec, *, excitation_position=None, pickup_position=None, n_modes):
+def solve(spec, n_modes):
     """The partials of a given set, lowest first.
 
     Parameters
     ----------
     spec : PartialsSpec
-    excitation_position, pickup_position : ignored
-        A partial set has no geometry.
     n_modes : int >= 1
         The lowest `n_modes` partials are kept (a warning names the rest).
 
     Returns
     -------
-    ModeSet
-        Labels ``"p<k>"`` (k: place in the patch's list); columns partial,
-        given_ratio, and t60_s / level_override_db where given.
+    Solution
+        Every shape is 1 (a partial set has no geometry).  Labels ``"p<k>"``
+        (k: place in the patch's list); columns partial, given_ratio, and
+        t60_s / level_override_db where given.
     """
     ratios = np.array(spec.ratios, dtype=float)
     order = np.argsort(ratios, kind="stable")
@@ -191,7 +191,6 @@ def partials_modes(spec, *, excitation_position=None, pickup_position=None, n_mo
         columns["t60_s"] = tuple(float(spec.t60[k]) for k in order)
     if spec.levels_db is not None:
         columns["level_override_db"] = tuple(float(spec.levels_db[k]) for k in order)
-    ones = np.ones(order.size)
     parameters = {
         "reference_hz": spec.reference_hz,
         "reference_solved": spec.pitch_hz is not None,
@@ -199,16 +198,25 @@ def partials_modes(spec, *, excitation_position=None, pickup_position=None, n_mo
         "per_partial_t60": spec.t60 is not None,
         "per_partial_levels": spec.levels_db is not None,
     }
-    return ModeSet(
+    size = order.size
+
+    def shape(position):
+        return np.ones(size)
+
+    return Solution(
         resonator="partials",
         frequency_hz=frozen_array(freq),
         labels=tuple(f"p{k + 1}" for k in order),
-        excitation_shape=frozen_array(ones),
-        pickup_shape=frozen_array(ones),
+        shape=shape,
         columns=columns,
         parameters=parameters,
         warnings=tuple(warnings),
     )
+
+
+def partials_modes(spec, *, excitation_position=None, pickup_position=None, n_modes):
+    """The partials of a given set as a ModeSet (positions are ignored; see :func:`solve`)."""
+    return solve(spec, n_modes).place(excitation_position, pickup_position)
 
 
 modes = partials_modes

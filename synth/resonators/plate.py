@@ -63,11 +63,11 @@ from typing import ClassVar
 import numpy as np
 from scipy.special import sindg
 
-from ..modes import ModeSet, frozen_array
+from ..modes import Solution, frozen_array
 from ..schema import Field
 from .common import SpecError, UnreachablePitch
-from .outline import check_outline
-from .plate_circle import circle_lambdas, circle_set
+from .outline import PairedSolution, check_outline
+from .plate_circle import circle_lambdas, circle_pairs
 
 __all__ = [
     "FIELDS",
@@ -76,6 +76,7 @@ __all__ = [
     "build_spec",
     "position_style",
     "modes",
+    "solve",
     "retune",
     "plate_modes",
     "flexural_rigidity",
@@ -304,7 +305,7 @@ def rectangle_lambdas(aspect, n_modes):
     return math.pi**2 * value[index], mm[index], nn[index]
 
 
-def _rectangle_set(spec, excitation_position, pickup_position, n_modes):
+def _rectangle_pairs(spec, n_modes):
     lambda2, m, n = rectangle_lambdas(spec.width / spec.height, n_modes)
 
     def shape(point):
@@ -312,8 +313,6 @@ def _rectangle_set(spec, excitation_position, pickup_position, n_modes):
         # sin(m pi x) via degrees: exactly 0 on the edges and on nodal lines.
         return 2.0 * sindg(180.0 * m * x) * sindg(180.0 * n * y)
 
-    excitation = shape(excitation_position)
-    pickup = np.ones(len(m)) if pickup_position is None else shape(pickup_position)
     columns = {
         "nodal_lines_x": tuple(int(k) - 1 for k in m),
         "nodal_lines_y": tuple(int(k) - 1 for k in n),
@@ -321,41 +320,42 @@ def _rectangle_set(spec, excitation_position, pickup_position, n_modes):
         "lambda_squared": tuple(float(v) for v in lambda2),
     }
     labels = tuple(f"({a},{b})" for a, b in zip(m, n))
-    return lambda2, labels, excitation, pickup, columns, {"width_m": spec.width, "height_m": spec.height}
+    return lambda2, labels, shape, columns
 
 
 # --------------------------------------------------------------------------
 # The contract.
 
 
-def plate_modes(spec, *, excitation_position, pickup_position, n_modes):
-    """Modes of a thin plate.
+def solve(spec, n_modes):
+    """Modes of a thin plate, before it is excited or heard anywhere.
 
     Parameters
     ----------
     spec : PlateSpec
-    excitation_position : (float, float)
-        Circle: (radius fraction 0..1, angle rad); rectangle: (x, y) fractions
-        of the width and height.
-    pickup_position : (float, float) or None
-        As `excitation_position`; None weights every mode by 1 (and merges
-        the orientations of circular pairs into one row).
     n_modes : int >= 1
-        How many rows to compute (the lowest modes; a cos/sin pair is two).
+        How many rows a placement lists (the lowest modes; a circular cos/sin
+        pair is two rows when a pickup is given).
 
     Returns
     -------
-    ModeSet
-        Circle columns: nodal_diameters (n), nodal_circles (s), nodal_lines
-        (n + s), orientation ("", "cos", "sin" or "pair"), nodal_circle_radii
+    PairedSolution (circle) or Solution (rectangle)
+        Positions: circle ``(radius fraction 0..1, angle rad)``; rectangle
+        ``(x, y)`` fractions of the width and height.  Circle columns:
+        nodal_diameters (n), nodal_circles (s), nodal_lines (n + s),
+        orientation ("", "cos", "sin" or "pair"), nodal_circle_radii
         (fractions of the radius), lambda_squared.  Rectangle columns:
         nodal_lines_x (m - 1), nodal_lines_y (n - 1), nodal_lines,
         lambda_squared.  Parameters: the thickness (solved or given), D, the
         areal density, the mass and the thin-plate limit frequency.
     """
     thickness = spec.thickness if spec.thickness is not None else solve_thickness(spec, spec.pitch_hz)
-    build = circle_set if spec.shape == "circle" else _rectangle_set
-    lambda2, labels, excitation, pickup, columns, geometry = build(spec, excitation_position, pickup_position, n_modes)
+    if spec.shape == "circle":
+        lambda2, orders, labels, radial, columns = circle_pairs(spec, n_modes)
+        geometry = {"radius_m": spec.radius, "orientation_reference_deg": 0.0}
+    else:
+        lambda2, labels, shape, columns = _rectangle_pairs(spec, n_modes)
+        geometry = {"width_m": spec.width, "height_m": spec.height}
     area = math.pi * spec.radius**2 if spec.shape == "circle" else spec.width * spec.height
     freq = lambda2 * _hz_per_lambda2(spec, thickness)
     d = flexural_rigidity(spec.youngs_modulus, thickness, spec.poisson_ratio)
@@ -382,16 +382,41 @@ def plate_modes(spec, *, excitation_position, pickup_position, n_modes):
             f"plate thickness {thickness * 1e3:.4g} mm is more than {MAX_THICKNESS_FRACTION:g} of the "
             f"{'diameter' if spec.shape == 'circle' else 'shorter side'}: thin-plate theory reads the modes sharp"
         )
-    return ModeSet(  # both tables come sorted by lambda
+    if spec.shape == "circle":  # both tables come sorted by lambda
+        return PairedSolution(
+            resonator="plate",
+            frequency_hz=frozen_array(freq),
+            orders=orders,
+            labels=labels,
+            radial=radial,
+            n_rows=n_modes,
+            columns=columns,
+            parameters=parameters,
+            warnings=tuple(warnings),
+            rim_is_node=spec.edges != "free",  # w = 0 on a clamped or pinned edge, exactly
+        )
+    return Solution(
         resonator="plate",
         frequency_hz=frozen_array(freq),
         labels=labels,
-        excitation_shape=frozen_array(excitation),
-        pickup_shape=frozen_array(pickup),
+        shape=shape,
         columns=columns,
         parameters=parameters,
         warnings=tuple(warnings),
     )
+
+
+def plate_modes(spec, *, excitation_position, pickup_position, n_modes):
+    """Modes of a thin plate excited and heard at two points (see :func:`solve`).
+
+    `pickup_position` None weights every mode by 1 (and merges the
+    orientations of circular pairs into one row).
+
+    Returns
+    -------
+    ModeSet
+    """
+    return solve(spec, n_modes).place(excitation_position, pickup_position)
 
 
 modes = plate_modes

@@ -25,9 +25,8 @@ import numpy as np
 from scipy.optimize import brentq
 from scipy.special import ive, jv
 
-from .outline import circle_rows, frame_angle
 
-__all__ = ["circle_lambdas", "circle_set"]
+__all__ = ["circle_lambdas", "circle_pairs"]
 
 #: Lowest lambda scanned, and the grid step of the root bracketing.  The
 #: lowest elastic root of any circle is near 2.2 (pinned (0,0)); roots of one
@@ -209,60 +208,48 @@ def _norms_and_nodes(lam, order, coefficient):
     return norms, radii
 
 @functools.lru_cache(maxsize=16)
-def _circle_table(edges, nu, n_modes, split):
-    """Everything about the lowest (n,s) filling `n_modes` rows that does not
-    depend on the thickness or the positions: lambda, n, s, C-tilde, shape
-    scale, nodal radii, and the rows (pair index, orientation).
+def _circle_table(edges, nu, n_modes):
+    """Everything about the lowest `n_modes` (n,s) pairs that does not depend on
+    the thickness or the positions: lambda, n, s, C-tilde, shape scale and
+    nodal radii.
 
     Cached: retuning (MIDI notes, batch jobs) only changes the thickness.
     """
     lam, order, circles, coefficient = circle_lambdas(edges, nu, n_modes)
-    rows = circle_rows(order, split, n_modes)
-    used = rows[-1][0] + 1  # pairs that made it into the rows
-    lam, order, circles, coefficient = lam[:used], order[:used], circles[:used], coefficient[:used]
     norms, radii = _norms_and_nodes(lam, order, coefficient)
     arrays = (lam, order, circles, coefficient, 1.0 / np.sqrt(norms))
     for array in arrays:
         array.flags.writeable = False
-    return (*arrays, tuple(radii), tuple(rows))
+    return (*arrays, tuple(radii))
 
 
-def circle_set(spec, excitation_position, pickup_position, n_modes):
-    """Frequency parameters, labels, shapes at the two points, columns and geometry of a circular plate.
+def circle_pairs(spec, n_modes):
+    """The lowest `n_modes` (n,s) pairs of a circular plate, per unit thickness.
 
     Returns
     -------
-    (lambda**2, labels, excitation shape, pickup shape, columns, geometry) :
-        As :func:`synth.resonators.plate.plate_modes` consumes them; the
-        frequencies follow from lambda**2 and the thickness.
+    lambda2 : ndarray [shape=(n_modes,)]
+        lambda**2 of each pair (the frequencies follow from the thickness).
+    order : ndarray of int
+        Nodal diameters.
+    labels : tuple of str
+    radial : callable
+        Radius fraction -> each pair's mass-normalised radial shape.
+    columns : dict
+        Per-pair nodal_diameters, nodal_circles, nodal_lines,
+        nodal_circle_radii, lambda_squared.
     """
-    split = pickup_position is not None
-    frame = frame_angle(excitation_position, pickup_position)
-    lam, order, circles, coefficient, scale, radii, rows = _circle_table(spec.edges, spec.poisson_ratio, n_modes, split)
-    held = spec.edges != "free"  # w = 0 on a clamped or pinned edge, exactly
-    index = np.array([r[0] for r in rows])
-    sine = np.array([r[1] == "sin" for r in rows])
-    n = order[index]
+    lam, order, circles, coefficient, scale, radii = _circle_table(spec.edges, spec.poisson_ratio, n_modes)
 
-    def shape(point):
-        radius, angle = point
-        if held and radius >= 1.0:
-            return np.zeros(len(rows))
-        radial = (_radial(order, lam, coefficient, radius) * scale)[index]
-        turn = np.where(sine, np.sin(n * (angle - frame)), np.cos(n * (angle - frame)))
-        return radial * turn
+    def radial(radius_fraction):
+        return _radial(order, lam, coefficient, radius_fraction) * scale
 
-    excitation = shape(excitation_position)
-    pickup = np.ones(len(rows)) if pickup_position is None else shape(pickup_position)
     columns = {
-        "nodal_diameters": tuple(int(order[i]) for i, _ in rows),
-        "nodal_circles": tuple(int(circles[i]) for i, _ in rows),
-        "nodal_lines": tuple(int(order[i] + circles[i]) for i, _ in rows),
-        "orientation": tuple(o for _, o in rows),
-        "nodal_circle_radii": tuple(radii[i] for i, _ in rows),
-        "lambda_squared": tuple(float(lam[i] ** 2) for i, _ in rows),
+        "nodal_diameters": tuple(int(n) for n in order),
+        "nodal_circles": tuple(int(s) for s in circles),
+        "nodal_lines": tuple(int(n + s) for n, s in zip(order, circles)),
+        "nodal_circle_radii": radii,
+        "lambda_squared": tuple(float(x**2) for x in lam),
     }
-    labels = tuple(f"({order[i]},{circles[i]})" for i, _ in rows)
-    geometry = {"radius_m": spec.radius, "orientation_reference_deg": math.degrees(frame)}
-    return lam[index] ** 2, labels, excitation, pickup, columns, geometry
-
+    labels = tuple(f"({n},{s})" for n, s in zip(order, circles))
+    return lam**2, order, labels, radial, columns

@@ -23,9 +23,7 @@ from dataclasses import dataclass, replace
 from typing import ClassVar
 
 import numpy as np
-from scipy.optimize import brentq
-
-from ..modes import ModeSet, frozen_array
+from ..modes import EvenNodes, Solution, frozen_array
 from ..schema import Field
 from .common import SAFE_STRESS_FRACTION, SpecError, UnreachablePitch, stress_warnings
 
@@ -36,6 +34,7 @@ __all__ = [
     "build_spec",
     "position_style",
     "modes",
+    "solve",
     "retune",
     "string_modes",
     "linear_density",
@@ -185,6 +184,8 @@ def solve_tension(pitch_hz, *, length, diameter, density, youngs_modulus, ends="
     def error(t):
         return stiff_string_frequencies(1, length=length, tension=t, mu=mu, b=k / t, ends=ends)[()] - pitch_hz
 
+    from scipy.optimize import brentq
+
     # Clamping only raises the pitch, so the answer lies below the pinned
     # tension.  Fletcher's factor is a small-B expansion: search no lower than
     # B = 1, where it stops being meaningful.
@@ -204,25 +205,24 @@ def _unreachable(pitch_hz, length, mu, k):
     )
 
 
-def string_modes(spec, *, excitation_position, pickup_position, n_modes):
-    """Modes of a stiff string.
+def solve(spec, n_modes):
+    """The modes of a stiff string, before it is excited or heard anywhere.
 
     Parameters
     ----------
     spec : StringSpec
-    excitation_position : float in [0, 1]
-        Fraction of the length.
-    pickup_position : float in [0, 1] or None
-        Fraction of the length; None weights every mode by 1.
     n_modes : int >= 1
         How many modes to compute.
 
     Returns
     -------
-    ModeSet
-        With columns harmonic, overtone, wavelength_m, phase_velocity_m_s,
-        n_nodes, n_antinodes, node_positions; parameters tension_n, stress,
-        inharmonicity and the stress as a percentage of tensile strength.
+    Solution
+        Shapes ``sin(n pi x)`` at fractions x of the length; columns harmonic,
+        overtone, wavelength_m, phase_velocity_m_s, n_nodes, n_antinodes,
+        node_spacing (fraction of the length between nodes, 1 / n) and
+        node_positions (``j / n``, built on demand: text report only);
+        parameters tension_n, stress, inharmonicity and the stress as a
+        percentage of tensile strength.
     """
     mu = linear_density(spec.density, spec.diameter)
     if spec.tension is None:
@@ -239,17 +239,16 @@ def string_modes(spec, *, excitation_position, pickup_position, n_modes):
     b = inharmonicity(spec.youngs_modulus, spec.diameter, tension, spec.length)
     n = np.arange(1, n_modes + 1)
     freq = stiff_string_frequencies(n, length=spec.length, tension=tension, mu=mu, b=b, ends=spec.ends)
-    excitation = np.sin(n * math.pi * excitation_position)
-    pickup = np.ones(n_modes) if pickup_position is None else np.sin(n * math.pi * pickup_position)
     wavelength = 2.0 * spec.length / n
     columns = {
-        "harmonic": tuple(int(k) for k in n),
-        "overtone": tuple(int(k) - 1 for k in n),
-        "wavelength_m": tuple(float(w) for w in wavelength),
-        "phase_velocity_m_s": tuple(float(v) for v in freq * wavelength),
-        "n_nodes": tuple(int(k) + 1 for k in n),
-        "n_antinodes": tuple(int(k) for k in n),
-        "node_positions": tuple(tuple(float(j / k) for j in range(k + 1)) for k in n),
+        "harmonic": tuple(n.tolist()),
+        "overtone": tuple((n - 1).tolist()),
+        "wavelength_m": tuple(wavelength.tolist()),
+        "phase_velocity_m_s": tuple((freq * wavelength).tolist()),
+        "n_nodes": tuple((n + 1).tolist()),
+        "n_antinodes": tuple(n.tolist()),
+        "node_spacing": tuple((1.0 / n).tolist()),
+        "node_positions": EvenNodes(n),
     }
     area = math.pi * spec.diameter**2 / 4.0
     stress = tension / area
@@ -269,17 +268,40 @@ def string_modes(spec, *, excitation_position, pickup_position, n_modes):
         "tensile_strength_pa": strength,
         "stress_percent_of_strength": None if not strength else 100.0 * stress / strength,
     }
-    warnings = stress_warnings(stress, strength, "string")
-    return ModeSet(
+
+    def shape(position):
+        return np.sin(n * math.pi * position)
+
+    return Solution(
         resonator="string",
         frequency_hz=frozen_array(freq),
-        labels=tuple(f"n={k}" for k in n),
-        excitation_shape=frozen_array(excitation),
-        pickup_shape=frozen_array(pickup),
+        labels=tuple(f"n={k}" for k in n.tolist()),
+        shape=shape,
         columns=columns,
         parameters=parameters,
-        warnings=tuple(warnings),
+        warnings=tuple(stress_warnings(stress, strength, "string")),
     )
+
+
+def string_modes(spec, *, excitation_position, pickup_position, n_modes):
+    """Modes of a stiff string excited and heard at fractions of its length.
+
+    Parameters
+    ----------
+    spec : StringSpec
+    excitation_position : float in [0, 1]
+        Fraction of the length.
+    pickup_position : float in [0, 1] or None
+        Fraction of the length; None weights every mode by 1.
+    n_modes : int >= 1
+        How many modes to compute.
+
+    Returns
+    -------
+    ModeSet
+        See :func:`solve` for the columns and parameters.
+    """
+    return solve(spec, n_modes).place(excitation_position, pickup_position)
 
 
 modes = string_modes

@@ -1,0 +1,144 @@
+"""The solve cache returns exactly what a fresh solve returns, and the partials do not move.
+
+* Golden tables: tests/data/golden_tables.json.gz holds the partial tables of
+  every demo patch (and voiced notes of them) as the code rendered them
+  before the solve cache existed (written by tests/make_golden_tables.py at
+  commit fc83547).  Restructuring must not change them.
+* Cached vs fresh: every demo patch's table through the process-wide cache
+  (twice, so the second is a hit) equals the table from a new, empty cache,
+  and placing a cached solution at other points equals solving afresh there.
+"""
+from __future__ import annotations
+
+import gzip
+import json
+from dataclasses import replace
+from pathlib import Path
+
+import numpy as np
+import pytest
+
+from synth.patch import Point, load_patch
+from synth.pipeline import mode_set, partial_table
+from synth.resonators import resonator_modes
+from synth.solvecache import DEFAULT_CACHE, SolveCache
+from synth.voicing import voice_patch
+from tests.make_golden_tables import case_table
+
+ROOT = Path(__file__).resolve().parents[1]
+PATCHES = sorted((ROOT / "patches").glob("*.yaml"))
+GOLDEN = json.loads(gzip.decompress((ROOT / "tests" / "data" / "golden_tables.json.gz").read_bytes()))["cases"]
+ARRAYS = ("frequency_hz", "amplitude", "phase", "t60_s")
+
+
+def _golden_id(case):
+    return f"{case['patch']}@{case['midi']}v{case['velocity']}"
+
+
+def _same_arrays(a, b):
+    for key in ARRAYS:
+        np.testing.assert_array_equal(getattr(a, key), getattr(b, key), err_msg=key)
+    np.testing.assert_array_equal(a.level_db, b.level_db)
+    assert a.labels == b.labels
+
+
+@pytest.mark.parametrize("case", GOLDEN, ids=_golden_id)
+def test_golden_tables_are_kept(case):
+    new = case_table(case["patch"], case["midi"], case["velocity"])
+    assert new["labels"] == case["labels"]
+    for key in ARRAYS:
+        # Floating-point rounding only (a quadrature's panel layout can move the
+        # last bit of a circular plate's normalisation): 1e-13 relative.
+        np.testing.assert_allclose(new[key], case[key], rtol=1e-13, atol=0, err_msg=key)
+
+
+@pytest.mark.parametrize("path", PATCHES, ids=lambda p: p.stem)
+def test_cached_table_equals_fresh_solve(path):
+    patch = load_patch(path)
+    first = partial_table(patch)
+    again = partial_table(patch)  # a hit in the process-wide cache
+    fresh = partial_table(patch, cache=SolveCache())
+    _same_arrays(first, fresh)
+    _same_arrays(again, fresh)
+    assert set(first.columns) == set(fresh.columns)
+    for key in first.columns:
+        assert list(first.columns[key]) == list(fresh.columns[key]) or key == "node_positions"
+    assert first.parameters == fresh.parameters
+    assert first.warnings == fresh.warnings
+
+
+def _moved(point):
+    """Another excitation point of the same style."""
+    if point is None:
+        return None
+    if point.style == "fraction":
+        return Point("fraction", (0.137,))
+    if point.style == "xy":
+        return Point("xy", (0.61, 0.23))
+    return Point("polar", (0.52, 0.7))
+
+
+@pytest.mark.parametrize("path", PATCHES, ids=lambda p: p.stem)
+def test_placing_a_cached_solution_equals_solving_there(path):
+    patch = load_patch(path)
+    cache = SolveCache()
+    mode_set(patch, cache=cache)  # solve once
+    moved = replace(patch, excitation=replace(patch.excitation, position=_moved(patch.excitation.position)))
+    placed = mode_set(moved, cache=cache)
+    assert cache.solves == 1 and cache.hits == 1
+    coordinate = None if moved.excitation.position is None else moved.excitation.position.values
+    pickup = None if patch.pickup.position is None else patch.pickup.position.values
+    direct = resonator_modes(
+        patch.resonator,
+        excitation_position=None if coordinate is None else (coordinate[0] if len(coordinate) == 1 else coordinate),
+        pickup_position=None if pickup is None else (pickup[0] if len(pickup) == 1 else pickup),
+        n_modes=patch.render.max_modes,
+    )
+    np.testing.assert_array_equal(placed.frequency_hz, direct.frequency_hz)
+    np.testing.assert_array_equal(placed.excitation_shape, direct.excitation_shape)
+    np.testing.assert_array_equal(placed.pickup_shape, direct.pickup_shape)
+    assert placed.labels == direct.labels
+
+
+def test_velocities_share_one_solve():
+    patch = load_patch(ROOT / "patches" / "bar-aluminium-chime-a4.yaml")
+    cache = SolveCache()
+    tables = [partial_table(voice_patch(patch, midi_note=72, velocity=v, cache=cache), cache=cache) for v in (20, 64, 127)]
+    assert cache.solves == 1
+    assert cache.retunes == 1
+    assert tables[0].frequency_hz.tolist() == tables[2].frequency_hz.tolist()
+    assert tables[0].amplitude[0] < tables[2].amplitude[0]
+
+
+def test_detune_moves_every_partial_by_the_same_interval():
+    patch = load_patch(ROOT / "patches" / "string-harp-practice-c4.yaml")
+    cache = SolveCache()
+    plain = partial_table(patch, cache=cache)
+    sharp = partial_table(patch, cache=cache, detune_cents=1.5)
+    assert cache.solves == 1
+    cents = 1200.0 * np.log2(sharp.frequency_hz / plain.frequency_hz)
+    np.testing.assert_allclose(cents, 1.5, rtol=0, atol=1e-9)
+    assert sharp.parameters["detune_cents"] == 1.5
+    np.testing.assert_allclose(sharp.amplitude, plain.amplitude, rtol=1e-6)  # weights follow f slightly (strike ~ 1/omega)
+
+
+def test_eviction_keeps_the_cache_bounded():
+    patch = load_patch(ROOT / "patches" / "string-harp-practice-c4.yaml")
+    cache = SolveCache(max_entries=3)
+    for note in range(48, 56):
+        partial_table(voice_patch(patch, midi_note=note, cache=cache), cache=cache)
+    assert len(cache) == 3
+    assert cache.solves == 8
+    # The most recent entries are kept: asking again for the last note is a hit.
+    hits = cache.hits
+    partial_table(voice_patch(patch, midi_note=55, cache=cache), cache=cache)
+    assert cache.hits == hits + 2  # the retune and the solve
+
+
+def test_default_cache_is_shared():
+    patch = load_patch(ROOT / "patches" / "membrane-frame-drum-d3.yaml")
+    DEFAULT_CACHE.clear()
+    solves = DEFAULT_CACHE.solves
+    partial_table(patch)
+    partial_table(voice_patch(patch, velocity=30))
+    assert DEFAULT_CACHE.solves == solves + 1
