@@ -3,42 +3,51 @@
 From a physically specified vibrating object it computes the modes, weights
 them by excitation and pickup, gives every mode its own decay, renders audio
 and reports the partial table it used.
+
+The public names below are imported on first use (so ``synth --help`` and a
+string's ``synth modes`` load only what they need).
 """
 from __future__ import annotations
 
+import importlib
+
 __version__ = "0.1.0"
 
-from .engine import render_modes
-from .errors import InputFileError, ModalError, PatchError, RenderError
-from .modes import (
-    ModeSet,
-    PartialTable,
-    table_to_csv,
-    table_to_dict,
-    table_to_json,
-    table_to_text,
-)
-from .patch import Patch, load_patch, patch_from_text, retune
-from .pipeline import mode_set, partial_table, render_patch
+#: Public name -> the module that defines it.
+_PUBLIC = {
+    "render_modes": "engine",
+    "ModalError": "errors",
+    "PatchError": "errors",
+    "RenderError": "errors",
+    "InputFileError": "errors",
+    "ModeSet": "modes",
+    "PartialTable": "modes",
+    "Solution": "modes",
+    "table_to_csv": "modes",
+    "table_to_dict": "modes",
+    "table_to_json": "modes",
+    "table_to_text": "modes",
+    "Patch": "patch",
+    "load_patch": "patch",
+    "patch_from_text": "patch",
+    "retune": "patch",
+    "mode_set": "pipeline",
+    "partial_table": "pipeline",
+    "render_patch": "pipeline",
+    "SolveCache": "solvecache",
+}
 
-__all__ = [
-    "__version__",
-    "render_modes",
-    "ModalError",
-    "PatchError",
-    "RenderError",
-    "InputFileError",
-    "ModeSet",
-    "PartialTable",
-    "table_to_csv",
-    "table_to_dict",
-    "table_to_json",
-    "table_to_text",
-    "Patch",
-    "load_patch",
-    "patch_from_text",
-    "retune",
-    "mode_set",
-    "partial_table",
-    "render_patch",
-]
+__all__ = ["__version__", *_PUBLIC]
+
+
+def __getattr__(name):
+    module = _PUBLIC.get(name)
+    if module is None:
+        raise AttributeError(f"module 'synth' has no attribute {name!r}")
+    value = getattr(importlib.import_module(f".{module}", __name__), name)
+    globals()[name] = value
+    return value
+
+
+def __dir__():
+    return sorted(__all__)

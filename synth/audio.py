@@ -15,7 +15,6 @@ import tempfile
 from pathlib import Path
 
 import numpy as np
-import soundfile
 
 from .errors import COMMAND_LINE, RenderError, option_error
 
@@ -275,6 +274,8 @@ def write_audio(path, signal, *, sample_rate, bit_depth, seed=DITHER_SEED, key=N
     PatchError, RenderError
         If `path` is refused or cannot be written; nothing is left behind.
     """
+    import soundfile
+
     fmt = check_output_path(path, bit_depth)
     rate = whole_sample_rate(sample_rate)
     data = quantise(signal, bit_depth, seed=seed)

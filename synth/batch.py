@@ -56,21 +56,28 @@ from .libindex import MANIFEST_NAME, index_texts, read_manifest
 from .library import (
     dither_seed,
     file_hash,
+    input_hash,
+    job_table,
     library_hash,
     library_jobs,
     load_library_spec,
     loudness_lufs,
     partials_dict,
+    patch_fingerprint,
 )
-from .pipeline import partial_table, render_patch
+from .solvecache import SolveCache
+from .pipeline import partial_table
 
 __all__ = ["LibraryResult", "build_library", "summary_lines", "default_workers", "PEAK_PREFIX_S"]
 
 PEAK_PREFIX_S = 0.25  # s, first span rendered when measuring a job's peak (doubled until exact)
 MANIFEST_INTERVAL_S = 30.0  # s, the manifest is also rewritten this often during a long run
+MAX_BATCH_JOBS = 16  # jobs handed to a worker at a time (fewer round trips; a few MB of WAV back)
 
 # ---------------------------------------------------------------------------
-# Work done in the workers (or inline): pure functions of the task.
+# Work done in the workers (or inline): pure functions of the task.  A task
+# carries partial tables (solved in the parent, once per object), never a
+# patch: a worker only renders, encodes and measures.
 
 _CONTROLLER = None
 
@@ -85,13 +92,15 @@ def _one_blas_thread():
     return _CONTROLLER.limit(limits=1)
 
 
-def _measure_peak(patch):
-    """The exact peak |sample| of `patch`'s unnormalised render (see the module notes)."""
-    table = partial_table(patch)
-    audible = table.amplitude > 0
-    frequency, t60 = table.frequency_hz[audible], table.t60_s[audible]
-    amplitude, phase = table.amplitude[audible], table.phase[audible]
-    sample_rate, duration = patch.render.sample_rate, patch.render.duration
+def _audible(table):
+    """(frequency, t60, amplitude, phase) of the modes of `table` that sound."""
+    keep = table.amplitude > 0
+    return tuple(np.array(values[keep]) for values in (table.frequency_hz, table.t60_s, table.amplitude, table.phase))
+
+
+def _peak_of(modes, duration, sample_rate):
+    """The exact peak |sample| of the render of `modes` (see the module notes)."""
+    frequency, t60, amplitude, phase = modes
     n_total = round(duration * sample_rate)
     span = PEAK_PREFIX_S
     while True:
@@ -106,40 +115,44 @@ def _measure_peak(patch):
         span *= 2.0
 
 
-def _render_sample(patch, gain, seed):
+def _measure_peak(patch):
+    """The exact peak |sample| of `patch`'s unnormalised render."""
+    return _peak_of(_audible(partial_table(patch)), patch.render.duration, patch.render.sample_rate)
+
+
+def _render_sample(modes, settings, gain, seed):
     """Render, scale, dither and encode one sample; measure it.  Returns a dict with ``wav`` bytes."""
     import soundfile
 
-    signal, table = render_patch(patch)
+    duration, sample_rate, bit_depth, absolute = settings
+    frequency, t60, amplitude, phase = modes
+    signal = render_modes(frequency, t60, amplitude, duration, sample_rate, phase=phase)
     scaled = signal.astype(np.float64) * gain
-    bit_depth, sample_rate = patch.render.bit_depth, patch.render.sample_rate
-    if patch.render.peak_db is None:
+    if absolute:
         normalise(scaled, peak_db=None, bit_depth=bit_depth)  # raises RenderError if it would clip
     buffer = io.BytesIO()
     soundfile.write(buffer, quantise(scaled, bit_depth, seed=seed), int(sample_rate), subtype=SUBTYPES[bit_depth], format="WAV")
     loudness, note = loudness_lufs(scaled, sample_rate)
-    return {
-        "wav": buffer.getvalue(),
-        "fundamental_hz": float(table.fundamental_hz),
-        "peak_dbfs": peak_dbfs(scaled),
-        "loudness_lufs": loudness,
-        "loudness_note": note,
-        "partials": partials_dict(table),
-    }
+    return {"wav": buffer.getvalue(), "peak_dbfs": peak_dbfs(scaled), "loudness_lufs": loudness, "loudness_note": note}
 
 
-def _execute(task):
-    """Run one task; return ("ok", value) or ("error", message) -- never raise."""
-    kind, patch = task[0], task[1]
+def _one(kind, settings, item):
+    """("ok", value) or ("error", message) of one job of a task -- never raises."""
     try:
-        with _one_blas_thread():
-            if kind == "peak":
-                return "ok", _measure_peak(patch)
-            return "ok", _render_sample(patch, task[2], task[3])
+        if kind == "peak":
+            return "ok", _peak_of(item[1], settings[0], settings[1])
+        return "ok", _render_sample(item[1], settings, item[2], item[3])
     except (ModalError, ValueError) as error:
         return "error", str(error)
     except Exception as error:  # noqa: BLE001 - one broken job must not stop the library
         return "error", f"internal error ({type(error).__name__}: {error}); please report this patch"
+
+
+def _execute(task):
+    """Run one task ``(kind, settings, [(job index, modes, ...), ...])``: [(job index, status, value)]."""
+    kind, settings, items = task
+    with _one_blas_thread():
+        return [(item[0], *_one(kind, settings, item)) for item in items]
 
 
 class _StopFlag:
@@ -228,17 +241,51 @@ def _finite(value):
     return value if value is not None and math.isfinite(value) else None
 
 
-class _Run:
-    """The state of one library run: jobs, gain, manifest entries and failures."""
+def _batches(items, size):
+    """`items` (an iterable) in lists of at most `size`."""
+    batch = []
+    for item in items:
+        batch.append(item)
+        if len(batch) >= size:
+            yield batch
+            batch = []
+    if batch:
+        yield batch
 
-    def __init__(self, spec, jobs, force):
+
+class _Run:
+    """The state of one library run: jobs, gain, manifest entries and failures.
+
+    The physics is done here, in the parent, once per object: each job's
+    partial table comes from :func:`synth.library.job_table` through one
+    :class:`~synth.solvecache.SolveCache`, just before the job is handed to a
+    worker, and is not kept after.
+    """
+
+    def __init__(self, spec, jobs, force, workers=1):
         self.spec, self.jobs, self.force = spec, jobs, force
         self.folder = spec.output
-        self.failed = {job.index: job.error for job in jobs if job.patch is None}
-        self.hash = library_hash(jobs)
+        self.cache = SolveCache()
+        self.failed = {}
+        fingerprint = patch_fingerprint(spec.patch)
+        self.inputs = [input_hash(job, fingerprint) for job in jobs]
+        self.hash = library_hash(self.inputs)
         self.previous = read_manifest(self.folder)
         self.gain, self.basis, self.loudest, self.reused = None, None, None, False
         self.entries, self.fresh, self.warned = {}, set(), []
+        render = spec.patch.render
+        self.settings = (render.duration, render.sample_rate, render.bit_depth, render.peak_db is None)
+        self.batch_size = max(1, min(MAX_BATCH_JOBS, len(jobs) // (4 * max(1, workers)) or 1))
+        self.pending = {}  # job index -> (fundamental_hz, partials) of jobs handed to a worker
+        self.task_jobs = []  # job indices of each task handed out, in order
+
+    def table(self, job):
+        """The job's partial table, or None (and the job marked failed) if it cannot be voiced."""
+        try:
+            return job_table(self.spec, job, cache=self.cache)
+        except PatchError as error:
+            self.failed[job.index] = str(error)
+            return None
 
     # -- the one gain ------------------------------------------------------
 
@@ -253,6 +300,17 @@ class _Run:
         self.loudest = basis.get("loudest_file") if isinstance(basis, dict) else None
         return True
 
+    def _peak_tasks(self):
+        def items():
+            for job in self.jobs:
+                table = self.table(job)
+                if table is not None:
+                    yield job.index, _audible(table)
+
+        for batch in _batches(items(), self.batch_size):
+            self.task_jobs.append([item[0] for item in batch])
+            yield "peak", self.settings, batch
+
     def measure_gain(self, executor, stop, progress):
         """Decide the gain from every job's peak; False if interrupted."""
         peak_db = self.spec.patch.render.peak_db
@@ -260,15 +318,13 @@ class _Run:
             self.gain = 1.0
             self.basis = {"method": "absolute scale (render.peak_db is null): gain 1; a sample that would clip fails"}
             return True
-        todo = [job for job in self.jobs if job.patch is not None]
         peaks = {}
-        with _progress(len(todo), "measuring peaks", progress) as bar:
-            for index, (status, value) in executor.run([("peak", job.patch) for job in todo], stop):
-                job = todo[index]
+        with _progress(len(self.jobs), "measuring peaks", progress) as bar:
+            for index, status, value in self.results(executor, self._peak_tasks(), stop):
                 if status == "ok":
-                    peaks[job.index] = value
+                    peaks[index] = value
                 else:
-                    self.failed[job.index] = value
+                    self.failed[index] = value
                 bar.update(1)
         if stop.requested:
             return False
@@ -291,10 +347,10 @@ class _Run:
     # -- files ---------------------------------------------------------------
 
     def carry_entries(self):
-        """Keep the previous entries of files still on disk; mark which are up to date."""
+        """Keep the previous entries of files still on disk; mark which are up to date (no physics)."""
         self.hashes = {}
         if self.gain is not None:
-            self.hashes = {job.index: file_hash(job, self.gain) for job in self.jobs if job.patch is not None}
+            self.hashes = {job.index: file_hash(self.inputs[job.index], self.gain) for job in self.jobs}
         old = {}
         for entry in (self.previous or {}).get("files", []):
             if isinstance(entry, dict) and isinstance(entry.get("file"), str):
@@ -317,8 +373,37 @@ class _Run:
     def to_render(self):
         return [job for job in self.jobs if job.index in self.hashes and job.index not in self.fresh and job.index not in self.failed]
 
+    def render_tasks(self, jobs):
+        """Tasks rendering `jobs`, each job's table computed as its task is handed out."""
+        def items():
+            for job in jobs:
+                table = self.table(job)
+                if table is None:
+                    continue
+                self.pending[job.index] = (float(table.fundamental_hz), partials_dict(table))
+                yield job.index, _audible(table), self.gain, dither_seed(job)
+
+        for batch in _batches(items(), self.batch_size):
+            self.task_jobs.append([item[0] for item in batch])
+            yield "render", self.settings, batch
+
+    def results(self, executor, tasks, stop):
+        """(job index, status, value) of every job of `tasks` as they come back.
+
+        A task whose worker failed as a whole (a crashed process, a lost
+        cluster worker) fails each of its jobs with the worker's message.
+        """
+        self.task_jobs = []
+        for task_index, outcome in executor.run(tasks, stop):
+            if isinstance(outcome, list):
+                yield from outcome
+            else:
+                for index in self.task_jobs[task_index]:
+                    yield index, "error", outcome[1]
+
     def store(self, job, value):
         """Write one rendered file (atomically) and record its entry."""
+        fundamental, partials = self.pending.pop(job.index)
         wav = value["wav"]
         with atomic_output(self.folder / job.file) as tmp:
             tmp.write_bytes(wav)
@@ -328,7 +413,7 @@ class _Run:
             "midi": job.midi,
             "velocity": job.velocity,
             "round_robin": job.round_robin,
-            "fundamental_hz": value["fundamental_hz"],
+            "fundamental_hz": fundamental,
             "detune_cents": job.detune_cents,
             "excitation_position": None if job.excitation_position is None else list(job.excitation_position),
             "peak_dbfs": _finite(value["peak_dbfs"]),
@@ -338,10 +423,14 @@ class _Run:
             "dither_seed": dither_seed(job),
             "bytes": len(wav),
             "up_to_date": True,
-            "partials": value["partials"],
+            "partials": partials,
         }
-        if value["partials"]["warnings"]:
-            self.warned.append((job.file, value["partials"]["warnings"][0]))
+        if partials["warnings"]:
+            self.warned.append((job.file, partials["warnings"][0]))
+
+    def fail(self, job, message):
+        self.pending.pop(job.index, None)
+        self.failed[job.index] = message
 
     # -- manifest and map ----------------------------------------------------
 
@@ -388,12 +477,17 @@ def build_library(spec_path, *, output=None, workers=None, scheduler=None, force
     started = time.perf_counter()
     spec = load_library_spec(spec_path, output=output)
     jobs = library_jobs(spec)
-    run = _Run(spec, jobs, force)
     executor = backend(_execute, workers, scheduler, len(jobs))
+    run = _Run(spec, jobs, force, workers=getattr(executor, "workers", 1))
     rendered = 0
+    reused = run.recorded_gain()
+    if reused:
+        run.carry_entries()
+        if not run.to_render() and not run.force:  # an idle re-run: no worker is started
+            executor = backend(_execute, 1, None, 1) if scheduler is None else executor
     with executor, _StopFlag() as stop:
         measure_started = time.perf_counter()
-        if not run.recorded_gain() and not run.measure_gain(executor, stop, progress):
+        if not reused and not run.measure_gain(executor, stop, progress):
             return _result(run, executor, started, 0.0, 0, "measuring", True)
         measure_s = time.perf_counter() - measure_started
         try:
@@ -402,19 +496,20 @@ def build_library(spec_path, *, output=None, workers=None, scheduler=None, force
             raise PatchError(f"cannot create the output folder {str(run.folder)!r}: {error.strerror or error}", key="output") from None
         try:
             _remove_temporaries(run.folder, spec.name)
-            run.carry_entries()
+            if not reused:
+                run.carry_entries()
             run.write_index()
             todo = run.to_render()
-            tasks = [("render", job.patch, run.gain, dither_seed(job)) for job in todo]
+            by_index = {job.index: job for job in todo}
             last_write = time.monotonic()
-            with _progress(len(tasks), "rendering", progress) as bar:
-                for index, (status, value) in executor.run(tasks, stop):
-                    job = todo[index]
+            with _progress(len(todo), "rendering", progress) as bar:
+                for index, status, value in run.results(executor, run.render_tasks(todo), stop):
+                    job = by_index[index]
                     if status == "ok":
                         run.store(job, value)
                         rendered += 1
                     else:
-                        run.failed[job.index] = value
+                        run.fail(job, value)
                     bar.update(1)
                     if time.monotonic() - last_write > MANIFEST_INTERVAL_S:
                         run.write_index()

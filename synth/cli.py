@@ -15,22 +15,8 @@ import os
 import sys
 from pathlib import Path
 
-import numpy as np
-
 from . import __version__
-from .audio import (
-    atomic_output,
-    check_output_file,
-    check_output_path,
-    make_output_folder,
-    normalise,
-    peak_dbfs,
-    write_audio,
-)
 from .errors import ModalError, option_error
-from .modes import table_to_csv, table_to_json, table_to_text
-from .patch import load_patch, patch_from_mapping
-from .pipeline import partial_table, render_patch
 
 __all__ = ["main", "LISTENING_CAUTION"]
 
@@ -41,8 +27,9 @@ DEFAULT_OUTPUT_DIR = Path("renders")
 #: Exit status after the reader of stdout went away: 128 + SIGPIPE (13), as a shell reports.
 BROKEN_PIPE_STATUS = 141
 #: Numeric failures deep in the physics that extreme (but finite) inputs can cause.
-#: ArithmeticError covers OverflowError, ZeroDivisionError and FloatingPointError.
-NUMERIC_ERRORS = (ArithmeticError, np.linalg.LinAlgError, MemoryError, RecursionError)
+#: ArithmeticError covers OverflowError, ZeroDivisionError and FloatingPointError;
+#: numpy's LinAlgError joins them once numpy is loaded (:func:`_numeric_errors`).
+NUMERIC_ERRORS = (ArithmeticError, MemoryError, RecursionError)
 NUMERIC_HINT = "check that sizes and frequencies are physically sensible"
 SHORT_MESSAGE_CHARS = 80  # of a numeric failure's own message
 
@@ -73,6 +60,11 @@ def _check_rows(rows):
 
 
 def cmd_modes(args):
+    from .audio import atomic_output, check_output_file
+    from .modes import table_to_csv, table_to_json, table_to_text
+    from .patch import load_patch
+    from .pipeline import partial_table
+
     _check_rows(args.rows)
     if args.csv:
         check_output_file(args.csv, suffixes=(".csv",), inputs=(args.patch,), key="--csv")
@@ -91,6 +83,11 @@ def cmd_modes(args):
 
 
 def cmd_render(args):
+    from .audio import check_output_path, make_output_folder, normalise, peak_dbfs, write_audio
+    from .modes import table_to_text
+    from .patch import load_patch
+    from .pipeline import render_patch
+
     _check_rows(args.rows)
     patch = load_patch(args.patch, overrides=_overrides(args))
     bits = patch.render.bit_depth
@@ -167,6 +164,8 @@ def cmd_tune_bar(args):
         tuned_patch_text,
         tuning_report,
     )
+    from .audio import atomic_output, check_output_file
+    from .patch import patch_from_mapping
     from .yamlio import load_yaml_file
 
     out = Path(args.output) if args.output else None
@@ -295,6 +294,12 @@ def _short(error):
     return f"{type(error).__name__}: {text}" if text else type(error).__name__
 
 
+def _numeric_errors():
+    """:data:`NUMERIC_ERRORS`, with numpy's LinAlgError if numpy has been loaded (else none was raised)."""
+    numpy = sys.modules.get("numpy")
+    return NUMERIC_ERRORS + ((numpy.linalg.LinAlgError,) if numpy is not None else ())
+
+
 def main(argv=None):
     parser = build_parser()
     args = parser.parse_args(argv)
@@ -311,7 +316,9 @@ def main(argv=None):
     except BrokenPipeError:
         _silence_stdout()
         return BROKEN_PIPE_STATUS
-    except NUMERIC_ERRORS as error:
+    except Exception as error:  # noqa: BLE001 - only the numeric failures are handled here
+        if not isinstance(error, _numeric_errors()):
+            raise
         print(f"synth: error: cannot compute this request ({_short(error)}): {NUMERIC_HINT}", file=sys.stderr)
         return 2
     except KeyboardInterrupt:

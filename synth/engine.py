@@ -34,12 +34,18 @@ mode-sample.  The matrices are never built from millions of ``exp`` calls:
 Only the GEMM operands are float32.  Work skipping: modes are sorted by the
 sample at which their envelope falls below a floor, so the live modes of a
 chunk are a prefix of the operands and dead modes cost nothing.
+
+The two power tables depend only on the modes' exponents (frequency, T60,
+sample rate) and the block layout, not on amplitudes or phases, so a small
+per-thread cache keeps them for renders of the same modes again: MIDI voices
+of one note, the velocity layers of a sample, the segments of a voice.
 """
 
 from __future__ import annotations
 
 import math
 import threading
+from collections import OrderedDict
 
 import numpy as np
 
@@ -60,8 +66,11 @@ CHUNK_BLOCKS = 256  # blocks per GEMM call (rows of U); GEMM efficiency needs >=
 GROUP_MODES = 2048  # modes per pass; bounds memory in the number of modes
 MAX_DECAY = 800.0  # nepers per sample; exp(-800) is 0 in float64, so faster decays are clamped
 WORKSPACE_BYTES = 8 * 2**20  # bytes; largest scratch buffer kept per thread between calls
+TABLE_CACHE_BYTES = 16 * 2**20  # bytes; power tables kept per thread for renders of the same modes
+TABLE_CACHE_MODES = 512  # modes; larger groups are not cached (their tables cost little next to the GEMM)
 
 _WORKSPACE = threading.local()  # per-thread reusable scratch buffers, by name
+_TABLES = threading.local()  # per-thread LRU of power tables: key -> (first, table, bytes)
 
 
 def _scratch(name: str, shape: tuple, dtype) -> np.ndarray:
@@ -82,8 +91,9 @@ def _scratch(name: str, shape: tuple, dtype) -> np.ndarray:
 
 
 def _clear_workspace() -> None:
-    """Drop this thread's scratch buffers (for memory measurements)."""
+    """Drop this thread's scratch buffers and cached power tables (for memory measurements)."""
     _WORKSPACE.__dict__.clear()
+    _TABLES.__dict__.clear()
 
 
 def _as_1d(name: str, value) -> np.ndarray:
@@ -276,12 +286,40 @@ def _render_chunk(out, start, stop, ops, accumulate):
             out[stop - rest : stop] = tail
 
 
+def _group_tables(s, block, count):
+    """The power tables of one group: z^r (r < block) and conj z^(jB) (j < count).
+
+    Kept in this thread's LRU (:data:`TABLE_CACHE_BYTES`) for groups of at
+    most :data:`TABLE_CACHE_MODES` modes, keyed by the exact exponents: a
+    render of the same modes again gets the very same tables.
+    """
+    if s.size > TABLE_CACHE_MODES:
+        return _power_matrix(s, block, 1, "first"), _power_matrix(np.conj(s), count, block, "table")
+    lru = getattr(_TABLES, "lru", None)
+    if lru is None:
+        lru = _TABLES.lru = OrderedDict()
+        _TABLES.bytes = 0
+    key = (s.tobytes(), block, count)
+    hit = lru.get(key)
+    if hit is not None:
+        lru.move_to_end(key)
+        return hit[0], hit[1]
+    first = _power_matrix(s, block, 1, "first").copy()
+    table = _power_matrix(np.conj(s), count, block, "table").copy()
+    first.flags.writeable = table.flags.writeable = False
+    size = first.nbytes + table.nbytes
+    lru[key] = (first, table, size)
+    _TABLES.bytes += size
+    while _TABLES.bytes > TABLE_CACHE_BYTES and len(lru) > 1:
+        _TABLES.bytes -= lru.popitem(last=False)[1][2]
+    return first, table
+
+
 def _render_group(out, s, coef, death, block, chunk, accumulate):
     """Render (or add) one group of modes, sorted by death, into ``out``."""
     n = out.size
     span = chunk * block
-    first = _power_matrix(s, block, 1, "first")  # z^r, r < B
-    table = _power_matrix(np.conj(s), min(chunk, -(-n // block)), block, "table")  # conj z^(jB)
+    first, table = _group_tables(s, block, min(chunk, -(-n // block)))
     ops = (s, coef, death, table, first.view(np.float32).T, block)
     for start in range(0, n, span):
         _render_chunk(out, start, min(start + span, n), ops, accumulate)

@@ -1,9 +1,11 @@
 """Where batch work runs: in this process, a local process pool, or a Dask cluster.
 
-Each executor runs a module-level function `work(task) -> result` over a list
-of tasks and yields ``(index, result)`` as results come in, stopping early when
-a stop flag is raised (Ctrl-C): a pool lets running tasks finish and hands
-their results back; Dask cancels what has not come back.
+Each executor runs a module-level function `work(task) -> result` over an
+iterable of tasks and yields ``(index, result)`` as results come in, stopping
+early when a stop flag is raised (Ctrl-C): a pool lets running tasks finish
+and hands their results back; Dask cancels what has not come back.  Tasks are
+drawn from the iterable only as workers free up (a bounded number in flight),
+so the caller can build each task just in time.
 """
 from __future__ import annotations
 
@@ -34,6 +36,7 @@ class Inline:
     """Runs tasks one by one in this process (``workers=1``)."""
 
     description = "this process"
+    workers = 1
 
     def __init__(self, work):
         self.work = work
@@ -68,23 +71,42 @@ class _Futures(ABC):
         except Exception as error:  # noqa: BLE001 - a dead worker fails its jobs, not the run
             return "error", f"the worker running this job failed ({type(error).__name__}: {error})"
 
+    #: Tasks in flight per worker (keeps every worker busy while results travel back).
+    in_flight_per_worker = 2
+
     def run(self, tasks, stop):
         done = queue.SimpleQueue()
+        tasks = iter(tasks)
         index_of = {}
-        for index, task in enumerate(tasks):
+        counter = 0
+        window = max(1, self.in_flight_per_worker * self.workers)
+
+        def submit_next():
+            nonlocal counter
+            task = next(tasks, None)
+            if task is None:
+                return False
             future = self._submit(task)
-            index_of[future] = index
+            index_of[future] = counter
+            counter += 1
             future.add_done_callback(done.put)
-        remaining = len(index_of)
-        while remaining and not stop.requested:
+            return True
+
+        more = True
+        while more and len(index_of) < window:
+            more = submit_next()
+        while index_of and not stop.requested:
             try:
                 future = done.get(timeout=POLL_S)
             except queue.Empty:
                 continue
-            remaining -= 1
-            yield index_of[future], self._outcome(future)
-        if remaining:
-            yield from self._drain(index_of, done, remaining)
+            index = index_of.pop(future)
+            outcome = self._outcome(future)
+            if more and not stop.requested:
+                more = submit_next()
+            yield index, outcome
+        if index_of:
+            yield from self._drain(index_of, done, len(index_of))
 
     def _drain(self, index_of, done, remaining):
         """After a stop: cancel every job not yet handed back; results still in flight are dropped."""
@@ -141,6 +163,9 @@ class Pool(_Futures):
 
 class Dask(_Futures):
     """The jobs submitted to an existing Dask distributed scheduler."""
+
+    #: Tasks kept in flight on a cluster (its size is not known here).
+    workers = 64
 
     def __init__(self, work, address):
         self.work = work

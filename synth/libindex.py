@@ -43,7 +43,7 @@ __all__ = [
 
 MANIFEST_NAME = "manifest.json"
 MANIFEST_FORMAT = "synth-library"
-FORMAT_VERSION = 1  # bump when file naming, hashing or the manifest layout changes
+FORMAT_VERSION = 2  # bump when file naming, hashing or the manifest layout changes
 MIDI_LOW, MIDI_HIGH = 0, 127  # MIDI note numbers (MIDI 1.0)
 VELOCITY_LOW, VELOCITY_HIGH = 1, 127  # MIDI note-on velocities (0 means note-off)
 #: How :func:`synth.library.loudness_lufs` measures, recorded in the manifest.

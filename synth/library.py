@@ -3,8 +3,13 @@
 A library spec (YAML) names a patch and the notes, velocities and round robins
 to render; :func:`load_library_spec` checks it (every error names file, line
 and key) and :func:`library_jobs` turns it into one :class:`Job` per
-note x velocity x round robin, each carrying its voiced patch.  Execution lives
-in :mod:`synth.batch`; this module does no rendering and writes no files.
+note x velocity x round robin.  A job holds only what it was asked for (note,
+velocity, take, detune, excitation point): :func:`job_table` voices it and
+computes its partials (the physics solved once per note in a
+:class:`~synth.solvecache.SolveCache`), and :func:`input_hash` fingerprints
+it without any physics, so a re-run can tell what is up to date at once.
+Execution lives in :mod:`synth.batch`; this module does no rendering and
+writes no files.
 The manifest and SFZ map are built in :mod:`synth.libindex` (its names are
 re-exported here).
 
@@ -24,8 +29,9 @@ Variation
 ---------
 Every sample draws three numbers u0, u1, u2 uniform in [-1, 1) from
 ``numpy.random.default_rng([seed, midi, velocity, round_robin])`` -- never from
-the order in which processes run.  The pitch is detuned by
-``detune_cents * u0`` cents and the excitation point moved by
+the order in which processes run.  Every partial of the object solved for the
+note is moved by ``detune_cents * u0`` cents (the ratios stay as solved, and
+no new solve is needed) and the excitation point moved by
 ``position * u1`` (fraction of the length; ``position * u2`` is the second
 coordinate of a 2-D point), clipped to [0, 1].  The pickup does not move.
 
@@ -60,6 +66,7 @@ from .libindex import (
 )
 from .modes import table_to_dict
 from .patch import load_patch
+from .pipeline import partial_table
 from .schema import Field, Section, read_section
 from .units import midi_to_note, note_to_midi
 from .voicing import REFERENCE_VELOCITY, voice_patch
@@ -71,9 +78,12 @@ __all__ = [
     "Job",
     "load_library_spec",
     "library_jobs",
+    "voice_job",
+    "job_table",
     "sample_file_name",
     "job_offsets",
     "patch_fingerprint",
+    "input_hash",
     "library_hash",
     "file_hash",
     "dither_seed",
@@ -141,10 +151,12 @@ class LibrarySpec:
 
 @dataclass(frozen=True)
 class Job:
-    """One sample: a note x velocity x round robin, its file and its voiced patch.
+    """One sample: a note x velocity x round robin and its file.
 
-    `patch` is None and `error` says why when the note cannot be voiced (for
-    example a pitch the object cannot reach).
+    `point` is the excitation point of this take (a :class:`synth.patch.Point`,
+    or None where the resonator takes no positions); `excitation_position`
+    its values.  The voiced patch and the partials are computed on demand
+    (:func:`voice_job`, :func:`job_table`).
     """
 
     index: int
@@ -154,9 +166,12 @@ class Job:
     round_robin: int
     file: str
     detune_cents: float
-    excitation_position: tuple | None
-    patch: object = None
-    error: str | None = None
+    point: object
+
+    @property
+    def excitation_position(self):
+        """The excitation point's values (tuple), or None."""
+        return None if self.point is None else tuple(self.point.values)
 
     @property
     def label(self):
@@ -347,20 +362,12 @@ def _moved_point(point, jitter, offsets):
 
 
 def library_jobs(spec):
-    """One :class:`Job` per note x velocity x round robin, sorted by file name."""
+    """One :class:`Job` per note x velocity x round robin, sorted by file name (no physics)."""
     jobs = []
     for note, midi in spec.notes:
         for velocity in spec.velocities:
             for rr in range(1, spec.round_robin + 1):
                 offsets = job_offsets(spec.variation, midi, velocity, rr)
-                detune = float(spec.variation.detune_cents * offsets[0])
-                point = _moved_point(spec.patch.excitation.position, spec.variation.position, offsets)
-                patch, error = None, None
-                try:
-                    voiced = voice_patch(spec.patch, midi_note=midi, velocity=velocity, detune_cents=detune)
-                    patch = dataclasses.replace(voiced, excitation=dataclasses.replace(voiced.excitation, position=point))
-                except PatchError as exc:
-                    error = str(exc)
                 jobs.append(Job(
                     index=len(jobs),
                     note=note,
@@ -368,12 +375,35 @@ def library_jobs(spec):
                     velocity=velocity,
                     round_robin=rr,
                     file=sample_file_name(spec.name, midi, velocity, rr),
-                    detune_cents=detune,
-                    excitation_position=None if point is None else tuple(point.values),
-                    patch=patch,
-                    error=error,
+                    detune_cents=float(spec.variation.detune_cents * offsets[0]),
+                    point=_moved_point(spec.patch.excitation.position, spec.variation.position, offsets),
                 ))
     return jobs
+
+
+def voice_job(spec, job, *, cache=None):
+    """The patch of `job`: the spec's patch retuned to the note, at the job's velocity and excitation point.
+
+    The detune is not in it: :func:`job_table` moves the solved partials.
+
+    Raises
+    ------
+    PatchError
+        If the object cannot reach the note (names ``resonator.pitch``).
+    """
+    voiced = voice_patch(spec.patch, midi_note=job.midi, velocity=job.velocity, cache=cache)
+    return dataclasses.replace(voiced, excitation=dataclasses.replace(voiced.excitation, position=job.point))
+
+
+def job_table(spec, job, *, cache=None):
+    """The :class:`~synth.modes.PartialTable` one job renders (its detune applied).
+
+    Raises
+    ------
+    PatchError
+        If the note cannot be voiced or has nothing to sound.
+    """
+    return partial_table(voice_job(spec, job, cache=cache), detune_cents=job.detune_cents, cache=cache)
 
 
 # ---------------------------------------------------------------------------
@@ -419,30 +449,34 @@ def dither_seed(job):
     return [DITHER_STREAM, int(job.midi), int(job.velocity), int(job.round_robin)]
 
 
-def _job_basis(job):
-    key = {"midi": job.midi, "velocity": job.velocity, "round_robin": job.round_robin, "file": job.file}
-    if job.patch is None:
-        return {"job": key, "error": job.error}
-    return {"job": key, "patch": patch_fingerprint(job.patch), "dither_seed": dither_seed(job)}
+def input_hash(job, fingerprint):
+    """SHA-256 of everything one file is made from, computed without any physics.
 
-
-def library_hash(jobs):
-    """SHA-256 of everything the library's one gain depends on: every job's parameters."""
+    The resolved base patch (`fingerprint`: :func:`patch_fingerprint` of the
+    spec's patch, render settings and sample format included), the note,
+    velocity and take, the take's detune and excitation point (which the
+    variation seed decides), the dither seed, and the versions of the
+    manifest layout and of synth.
+    """
     return _digest({
         "format_version": FORMAT_VERSION,
         "synth_version": __version__,
-        "jobs": [_job_basis(job) for job in jobs],
+        "patch": fingerprint,
+        "job": {"midi": job.midi, "velocity": job.velocity, "round_robin": job.round_robin, "file": job.file},
+        "detune_cents": job.detune_cents,
+        "excitation_position": job.excitation_position,
+        "dither_seed": dither_seed(job),
     })
 
 
-def file_hash(job, gain):
-    """SHA-256 of the effective parameters of one file: its job, patch, dither and the library gain."""
-    return _digest({
-        "format_version": FORMAT_VERSION,
-        "synth_version": __version__,
-        "gain": float(gain),
-        **_job_basis(job),
-    })
+def library_hash(input_hashes):
+    """SHA-256 of everything the library's one gain depends on: every job's inputs, in order."""
+    return _digest({"format_version": FORMAT_VERSION, "synth_version": __version__, "jobs": list(input_hashes)})
+
+
+def file_hash(input_digest, gain):
+    """SHA-256 of one file's bytes-to-be: its inputs (:func:`input_hash`) and the library gain."""
+    return _digest({"inputs": input_digest, "gain": float(gain)})
 
 
 # ---------------------------------------------------------------------------

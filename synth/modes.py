@@ -95,10 +95,13 @@ class EvenNodes:
 
 
 def _take(values, index):
-    """Column `values` at the positions in `index` (lazy columns stay lazy)."""
+    """Column `values` at the positions in `index` (lazy columns stay lazy; a leading run is a slice)."""
     take = getattr(values, "take", None)
-    if take is not None and not isinstance(values, np.ndarray):
+    if take is not None and not isinstance(values, (np.ndarray, tuple)):
         return take(index)
+    n = len(index)
+    if n == 0 or (index[0] == 0 and index[-1] == n - 1 and bool(np.all(np.diff(index) == 1))):  # 0..n-1: a slice
+        return tuple(values[:n])
     return tuple(values[i] for i in index)
 
 

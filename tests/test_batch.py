@@ -41,6 +41,7 @@ from synth.library import (
     load_library_spec,
     loudness_lufs,
     sample_file_name,
+    voice_job,
 )
 from synth.pipeline import render_patch
 
@@ -443,8 +444,9 @@ def test_peak_measurement_is_exact(tmp_path):
     """The bounded early-stopping peak equals the full render's peak (float32 rounding aside)."""
     spec = load_library_spec(make_spec(tmp_path, SPEC, RIG.replace("duration: 0.5 s", "duration: 4 s")))
     for job in library_jobs(spec)[::3]:
-        signal, _ = render_patch(job.patch)
-        assert _measure_peak(job.patch) == pytest.approx(float(np.max(np.abs(signal))), rel=1e-5)
+        patch = voice_job(spec, job)
+        signal, _ = render_patch(patch)
+        assert _measure_peak(patch) == pytest.approx(float(np.max(np.abs(signal))), rel=1e-5)
 
 
 def test_variation_is_seeded_by_the_job_not_the_order(tmp_path):

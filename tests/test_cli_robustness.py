@@ -20,6 +20,7 @@ import pytest
 
 import synth.audio as audio
 import synth.cli as cli
+import synth.pipeline as pipeline
 from synth.audio import _full_scale_limit, atomic_output, check_output_path, write_audio
 from synth.cli import main
 from synth.errors import PatchError, RenderError
@@ -284,7 +285,7 @@ def test_numeric_failure_is_one_line(work, capsys, monkeypatch, error):
     def fail(patch):
         raise error
 
-    monkeypatch.setattr(cli, "partial_table", fail)
+    monkeypatch.setattr(pipeline, "partial_table", fail)  # the command imports it when it runs
     line = refused(capsys, work, "modes", "patch.yaml", "--csv", "t.csv",
                    phrase=rf"^synth: error: cannot compute this request \({type(error).__name__}")
     assert line.endswith("): check that sizes and frequencies are physically sensible"), line
@@ -295,7 +296,7 @@ def test_real_bugs_still_raise(work, monkeypatch):
     def bug(patch):
         raise TypeError("a bug in synth")
 
-    monkeypatch.setattr(cli, "partial_table", bug)
+    monkeypatch.setattr(pipeline, "partial_table", bug)
     with pytest.raises(TypeError, match="a bug in synth"):
         main(["modes", "patch.yaml"])
 

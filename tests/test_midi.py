@@ -761,3 +761,28 @@ def test_unreachable_note_names_the_note(tmp_path, capsys):
     err = capsys.readouterr().err
     assert status == 2 and "note A0 (key 21, velocity 100) on channel 1 at 0.000 s" in err and "stiffness" in err
     assert "resonator.pitch" in err
+
+
+def _decay_by_bisection(abs_amp, sigma, level):
+    """Reference: the smallest whole n with sum |a| e^(-sigma n) <= level, by plain bisection."""
+    def envelope(n):
+        return float(np.sum(abs_amp * np.exp(-sigma * n)))
+
+    if envelope(0) <= level:
+        return 0.0
+    loud = abs_amp * abs_amp.size > level
+    low, high = 0, math.ceil(float(np.max(np.log(abs_amp[loud] * abs_amp.size / level) / sigma[loud])))
+    while high - low > 1:
+        middle = (low + high) // 2
+        low, high = (low, middle) if envelope(middle) <= level else (middle, high)
+    return float(high)
+
+
+def test_voice_end_newton_matches_bisection(rng):
+    """decay_samples (Newton on a convex decreasing log-envelope) gives bisection's whole sample, every time."""
+    for _ in range(2000):
+        m = int(rng.integers(1, 120))
+        amp = rng.uniform(0.0, 1.0, m) ** rng.uniform(0.5, 4.0)
+        sigma = 10.0 ** rng.uniform(-7.0, -1.0, m)
+        level = 10.0 ** rng.uniform(-8.0, 0.0) * float(amp.sum())
+        assert voices.decay_samples(amp, sigma, level) == _decay_by_bisection(amp, sigma, level)
