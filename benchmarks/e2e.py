@@ -15,8 +15,9 @@ It prints, on this machine, in one run:
   with ``soundfile``, one after the other, in this process;
 * **idle re-run**: the same command again, every file up to date;
 * **MIDI**: ``synth midi`` of a 4,000-note file through the practice-harp
-  string patch, against its engine-only bound: every voice's partials
-  rendered with ``render_modes`` over the voice's length, in this process;
+  string patch (a new process, wall-clock time), against its engine-only
+  bound: the very ``render_modes`` calls the render makes (every segment of
+  every voice), replayed one after another in this process;
 * **solves**: one fresh solve (no cache) of every resonator type at 64 and
   256 modes, best of several;
 * **many modes**: ``synth modes`` of a 20,000-mode string, wall time and
@@ -164,30 +165,34 @@ def write_song(path, n_notes, seed=9):
     song.save(str(path))
 
 
-def midi_bound(song_path, patch_path):
-    """Engine-only time: every voice's partials rendered with render_modes over its length."""
-    from synth import midi as midi_module
+def midi_bound(song_path, patch_path, work):
+    """Engine-only time: every engine call of the render (each segment of each voice), replayed alone.
+
+    The render is run once in this process with ``render_modes`` recording its
+    arguments; the bound is the time of those same calls, one after another,
+    with nothing else (no voicing, mixing, normalising or writing).
+    """
+    from synth import voices
     from synth.engine import render_modes
-    from synth.patch import load_patch
-    from synth.voices import VoicingCache, voice_end
+    from synth.midi import render_midi
 
-    patch = load_patch(patch_path)
-    song = midi_module.read_midi(song_path)
-    rate = patch.render.sample_rate
-    performance = midi_module.perform(song, sample_rate=rate)
-    cache = VoicingCache([patch])
-    voices = []
-    for note in performance.notes:
-        tone = cache.tone(0, note.key, note.velocity)
-        end = voice_end(tone, onset=note.onset, damper=note.damper, release_t60=patch.damping.release_t60,
-                        sample_rate=rate)
-        voices.append((tone, (min(end, performance.end_sample + 60 * rate) - note.onset) / rate))
+    calls = []
 
-    def work():
-        for tone, seconds in voices:
-            render_modes(tone.frequency_hz, tone.t60_s, tone.amplitude, seconds, rate, phase=tone.phase)
+    def recording(*args, **kwargs):
+        calls.append((args, kwargs))
+        return render_modes(*args, **kwargs)
 
-    return best(work, 2), len(voices)
+    voices.render_modes = recording
+    try:
+        render_midi(song_path, output=work / "bound.wav", patch=patch_path)
+    finally:
+        voices.render_modes = render_modes
+
+    def replay():
+        for args, kwargs in calls:
+            render_modes(*args, **kwargs)
+
+    return best(replay, 2), len(calls)
 
 
 def bench_midi(work, n_notes):
@@ -195,8 +200,8 @@ def bench_midi(work, n_notes):
     write_song(song, n_notes)
     patch = ROOT / "patches" / "string-harp-practice-c4.yaml"
     wall = min(run([*SYNTH, "midi", str(song), "--patch", str(patch), "-o", "song.wav", "-q"], work)[0] for _ in range(2))
-    bound, voices = midi_bound(song, patch)
-    return {"notes": voices, "wall_s": wall, "bound_s": bound}
+    bound, calls = midi_bound(song, patch, work)
+    return {"notes": n_notes, "calls": calls, "wall_s": wall, "bound_s": bound}
 
 
 SOLVE_PATCHES = {
@@ -272,7 +277,7 @@ def main(argv=None):
           f"{library['idle_s'] / library['bound_s']:.2f}x")
     song = bench_midi(work, 1000 if args.quick else 4000)
     print(f"midi: {song['notes']} notes {song['wall_s']:.2f} s = {song['wall_s'] / song['bound_s']:.2f}x its "
-          f"engine-only bound {song['bound_s']:.2f} s")
+          f"engine-only bound {song['bound_s']:.2f} s ({song['calls']} engine calls)")
     for kind, (t64, t256) in bench_solves(3 if args.quick else 7).items():
         print(f"solve {kind:12s} 64 modes {t64:7.2f} ms   256 modes {t256:7.2f} ms")
     many = bench_many_modes(work)

@@ -108,8 +108,12 @@ def quantise(signal, bit_depth, *, seed=DITHER_SEED):
         values = np.round(np.asarray(signal, dtype=np.float64) * 32767.0 + tpdf)
         return np.clip(values, -32768, 32767).astype(np.int16)
     if bit_depth == 24:
-        values = np.round(np.asarray(signal, dtype=np.float64) * 8388607.0)
-        return (np.clip(values, -8388608, 8388607).astype(np.int32) << 8)
+        values = np.multiply(signal, 8388607.0, dtype=np.float64)  # one pass: no float64 copy first
+        np.rint(values, out=values)
+        np.clip(values, -8388608, 8388607, out=values)
+        ints = values.astype(np.int32)
+        np.left_shift(ints, 8, out=ints)
+        return ints
     raise ValueError(f"bit_depth={bit_depth!r} must be one of 16, 24, 32")
 
 

@@ -127,7 +127,7 @@ def _render_sample(modes, settings, gain, seed):
     duration, sample_rate, bit_depth, absolute = settings
     frequency, t60, amplitude, phase = modes
     signal = render_modes(frequency, t60, amplitude, duration, sample_rate, phase=phase)
-    scaled = signal.astype(np.float64) * gain
+    scaled = np.multiply(signal, gain, dtype=np.float64)
     if absolute:
         normalise(scaled, peak_db=None, bit_depth=bit_depth)  # raises RenderError if it would clip
     buffer = io.BytesIO()

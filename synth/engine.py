@@ -107,6 +107,21 @@ def _as_1d(name: str, value) -> np.ndarray:
     return arr
 
 
+def _fast_checks(f, t60, a, ph):
+    """True if the per-mode arrays certainly pass :func:`_validate` (a few reductions).
+
+    False means "look closer": the exact checks then decide (a phase of
+    1e308 is finite although the sum used here overflows).
+    """
+    return bool(
+        f.min() >= 0.0
+        and math.isfinite(f.max())
+        and t60.min() > 0.0  # NaN makes min NaN: not > 0
+        and math.isfinite(np.abs(a).sum())
+        and math.isfinite(ph.sum())
+    )
+
+
 def _validate(frequency_hz, t60_s, amplitude, duration, sample_rate, phase):
     """Check the arguments of :func:`render_modes`; return arrays and sample count."""
     f = _as_1d("frequency_hz", frequency_hz)
@@ -120,14 +135,15 @@ def _validate(frequency_hz, t60_s, amplitude, duration, sample_rate, phase):
                 f"{name} has {arr.size} values but frequency_hz has {m}; "
                 "all per-mode arrays must have equal length"
             )
-    if not np.all(np.isfinite(f) & (f >= 0)):
-        raise ValueError("frequency_hz must be finite and >= 0 Hz")
-    if not np.all((t60 > 0) & ~np.isnan(t60)):
-        raise ValueError("t60_s must be > 0 s (np.inf allowed: no decay)")
-    if not (np.all(np.isfinite(a)) and math.isfinite(float(np.abs(a).sum()))):
-        raise ValueError("amplitude must be finite (and sum|amplitude| finite)")
-    if not np.all(np.isfinite(ph)):
-        raise ValueError("phase must be finite (radians)")
+    if m and not _fast_checks(f, t60, a, ph):
+        if not np.all(np.isfinite(f) & (f >= 0)):
+            raise ValueError("frequency_hz must be finite and >= 0 Hz")
+        if not np.all((t60 > 0) & ~np.isnan(t60)):
+            raise ValueError("t60_s must be > 0 s (np.inf allowed: no decay)")
+        if not (np.all(np.isfinite(a)) and math.isfinite(float(np.abs(a).sum()))):
+            raise ValueError("amplitude must be finite (and sum|amplitude| finite)")
+        if not np.all(np.isfinite(ph)):
+            raise ValueError("phase must be finite (radians)")
     try:
         fs = float(sample_rate)
         dur = float(duration)

@@ -48,8 +48,8 @@ MIDI_LOW, MIDI_HIGH = 0, 127  # MIDI note numbers (MIDI 1.0)
 VELOCITY_LOW, VELOCITY_HIGH = 1, 127  # MIDI note-on velocities (0 means note-off)
 #: How :func:`synth.library.loudness_lufs` measures, recorded in the manifest.
 LOUDNESS_METER = (
-    "ITU-R BS.1770-4 gated integrated loudness, pyloudnorm Meter(filter_class='DeMan'): "
-    "the Recommendation's K-weighting coefficients at 48 kHz, redesigned for other rates"
+    "ITU-R BS.1770-4 gated integrated loudness (synth.loudness; equal to pyloudnorm Meter(filter_class='DeMan') "
+    "to rounding): the Recommendation's K-weighting coefficients at 48 kHz, redesigned for other rates"
 )
 
 

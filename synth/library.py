@@ -499,20 +499,21 @@ def loudness_lufs(signal, sample_rate):
 
     Notes
     -----
-    Measured with pyloudnorm's meter using the "DeMan" filter design, which
-    reproduces the Recommendation's tabulated 48 kHz K-weighting coefficients
-    (and so reads a 0 dBFS 997 Hz sine as -3.01 LKFS); pyloudnorm's default
-    design reads it 0.04 LU low.  The gated measure needs at least one 400 ms
-    block, so shorter samples get None.
+    Measured by :func:`synth.loudness.integrated_loudness`: the
+    Recommendation's K-weighting (its tabulated coefficients at 48 kHz,
+    redesigned for other rates with De Man's parameters, as pyloudnorm's
+    "DeMan" filter class does, so a 0 dBFS 997 Hz sine reads -3.01 LKFS) and
+    its gating, agreeing with pyloudnorm's meter to rounding.  The gated
+    measure needs at least one 400 ms block, so shorter samples get None.
     """
-    import pyloudnorm
+    from .loudness import integrated_loudness
 
     signal = np.asarray(signal, dtype=np.float64)
     duration = len(signal) / float(sample_rate)
     if len(signal) < LOUDNESS_BLOCK_S * float(sample_rate):
         return None, f"not measured: {duration:.3g} s is shorter than one {LOUDNESS_BLOCK_S * 1000:.0f} ms gating block (ITU-R BS.1770)"
     try:
-        value = pyloudnorm.Meter(float(sample_rate), filter_class="DeMan").integrated_loudness(signal)
+        value = integrated_loudness(signal, float(sample_rate))
     except ValueError as error:
         return None, f"not measured: {error}"
     if not math.isfinite(value):

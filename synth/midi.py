@@ -539,6 +539,8 @@ def _mix(buffer, performance, assigned, voiced, patches, bar):
             stop = start + signal.size
             if stereo:
                 buffer[start:stop] += signal[:, None] * gains[None, :]
+            elif gains[0] == 1.0:
+                buffer[start:stop] += signal  # the same sums as signal * 1
             else:
                 buffer[start:stop] += signal * gains[0]
 

@@ -8,6 +8,7 @@ is applied to the solved modes.
 from __future__ import annotations
 
 import math
+from dataclasses import dataclass
 
 import numpy as np
 
@@ -19,7 +20,7 @@ from .patch import MAX_SAMPLE_RATE
 from .resonators import UnreachablePitch, resonator_name
 from .solvecache import DEFAULT_CACHE
 
-__all__ = ["mode_set", "partial_table", "render_patch"]
+__all__ = ["mode_set", "partial_table", "render_patch", "Unweighted", "unweighted_partials", "weigh"]
 
 
 def _coordinate(point):
@@ -45,23 +46,30 @@ def mode_set(patch, *, cache=None):
     return solution.place(_coordinate(patch.excitation.position), _coordinate(patch.pickup.position))
 
 
-def partial_table(patch, *, modes=None, detune_cents=0.0, cache=None):
-    """The partials `patch` renders: weighted, damped, below Nyquist.
+@dataclass(frozen=True)
+class Unweighted:
+    """The partials of a patch before the excitation weights them (see :func:`unweighted_partials`).
 
-    Parameters
-    ----------
-    patch : Patch
-    modes : ModeSet or None
-        Precomputed modes of `patch.resonator`.
-    detune_cents : float, cents
-        Moves every partial of the solved object by this interval before it
-        is weighted and damped (a round robin's detune: no new solve).
-    cache : SolveCache or None
-        Where the modes are solved (default: the process-wide cache).
+    Everything here depends on the object, the positions, the detune, the
+    damping and the sample rate, but not on how hard it is excited: a MIDI
+    note's velocities share one.
+    """
 
-    Returns
-    -------
-    PartialTable
+    modes: object  # ModeSet, every computed mode
+    keep: np.ndarray  # below Nyquist
+    kept: object  # ModeSet of the modes below Nyquist
+    t60_s: np.ndarray  # of the kept modes
+    fundamental_hz: float
+    warnings: tuple
+
+
+def unweighted_partials(patch, *, modes=None, detune_cents=0.0, cache=None):
+    """The first half of :func:`partial_table`: modes placed, detuned, cut at Nyquist and damped.
+
+    Raises
+    ------
+    PatchError
+        If every mode is at or above Nyquist, or the damping cannot apply.
     """
     modes = mode_set(patch, cache=cache) if modes is None else modes
     modes = modes.detuned(detune_cents)
@@ -77,6 +85,37 @@ def partial_table(patch, *, modes=None, detune_cents=0.0, cache=None):
     if not np.any(keep):
         raise _all_above_nyquist(patch, float(modes.frequency_hz[0]), nyquist)
     fundamental = float(modes.frequency_hz[0])
+    kept = modes.select(keep)
+    damping = patch.damping
+    if damping.t60_high is not None and damping.high_frequency <= fundamental:
+        raise patch.error(
+            "damping.high_frequency",
+            f"must be above the fundamental ({fundamental:.2f} Hz) to set how high partials decay",
+        )
+    t60 = two_point_t60(
+        kept.frequency_hz,
+        t60=damping.t60,
+        fundamental_hz=fundamental,
+        t60_high=damping.t60_high,
+        high_frequency=damping.high_frequency,
+    )
+    if "t60_s" in kept.columns:
+        # Decay times given per mode (None: the damping section's) replace the two-point T60.
+        given = np.array([np.nan if v is None else v for v in kept.columns["t60_s"]], dtype=float)
+        t60 = np.where(np.isfinite(given), given, t60)
+    return Unweighted(modes, keep, kept, t60, fundamental, tuple(warnings))
+
+
+def weigh(patch, unweighted):
+    """The second half of :func:`partial_table`: the excitation's weights and the levels.
+
+    Raises
+    ------
+    PatchError
+        If nothing would sound (the excitation or pickup on a node of every
+        mode, or no strength).
+    """
+    modes, keep, kept = unweighted.modes, unweighted.keep, unweighted.kept
     # Weights are computed over every computed mode, then the ones at or above
     # Nyquist are dropped: the level of a mode does not depend on the sample rate.
     amplitude, phase = excitation_weights(
@@ -95,25 +134,7 @@ def partial_table(patch, *, modes=None, detune_cents=0.0, cache=None):
     scale = np.abs(modes.excitation_shape * modes.pickup_shape)
     null = scale <= NODE_TOLERANCE * max(float(np.max(scale)), 1e-300)
     amplitude = np.where(null, 0.0, amplitude)
-    kept = modes.select(keep)
     amplitude, phase, null = amplitude[keep], phase[keep], null[keep]
-    damping = patch.damping
-    if damping.t60_high is not None and damping.high_frequency <= fundamental:
-        raise patch.error(
-            "damping.high_frequency",
-            f"must be above the fundamental ({fundamental:.2f} Hz) to set how high partials decay",
-        )
-    t60 = two_point_t60(
-        kept.frequency_hz,
-        t60=damping.t60,
-        fundamental_hz=fundamental,
-        t60_high=damping.t60_high,
-        high_frequency=damping.high_frequency,
-    )
-    if "t60_s" in kept.columns:
-        # Decay times given per mode (None: the damping section's) replace the two-point T60.
-        given = np.array([np.nan if v is None else v for v in kept.columns["t60_s"]], dtype=float)
-        t60 = np.where(np.isfinite(given), given, t60)
     peak = float(np.max(amplitude)) if amplitude.size else 0.0
     if patch.excitation.strength == 0.0:
         raise patch.error("excitation.strength", "must be > 0 to sound")
@@ -129,17 +150,44 @@ def partial_table(patch, *, modes=None, detune_cents=0.0, cache=None):
     return PartialTable(
         name=patch.name,
         resonator=resonator_name(patch.resonator),
-        fundamental_hz=fundamental,
+        fundamental_hz=unweighted.fundamental_hz,
         frequency_hz=frozen_array(kept.frequency_hz),
         amplitude=frozen_array(amplitude),
         phase=frozen_array(phase),
-        t60_s=frozen_array(t60),
+        t60_s=frozen_array(unweighted.t60_s),
         level_db=frozen_array(level_db),
         labels=kept.labels,
         columns={k: v for k, v in kept.columns.items() if k != "t60_s"},
         parameters=kept.parameters,
-        warnings=tuple(warnings),
+        warnings=unweighted.warnings,
     )
+
+
+def partial_table(patch, *, modes=None, detune_cents=0.0, cache=None):
+    """The partials `patch` renders: weighted, damped, below Nyquist.
+
+    Parameters
+    ----------
+    patch : Patch
+    modes : ModeSet or None
+        Precomputed modes of `patch.resonator`.
+    detune_cents : float, cents
+        Moves every partial of the solved object by this interval before it
+        is weighted and damped (a round robin's detune: no new solve).
+    cache : SolveCache or None
+        Where the modes are solved (default: the process-wide cache).
+
+    Returns
+    -------
+    PartialTable
+
+    Notes
+    -----
+    :func:`unweighted_partials` then :func:`weigh`; callers that voice one
+    object at many strengths (MIDI velocities) keep the first and call the
+    second per strength.
+    """
+    return weigh(patch, unweighted_partials(patch, modes=modes, detune_cents=detune_cents, cache=cache))
 
 
 def _all_above_nyquist(patch, lowest_hz, nyquist):

@@ -40,7 +40,7 @@ from .audio import (
 from .damping import LN1000
 from .engine import render_modes
 from .modes import frozen_array
-from .pipeline import partial_table
+from .pipeline import unweighted_partials, weigh
 from .units import A4_HZ
 from .voicing import voice_patch
 
@@ -107,7 +107,9 @@ class VoicingCache:
     Attributes
     ----------
     solves : int
-        How many times modes were computed (cache misses).
+        How many notes were prepared (each object's modes placed and damped
+        once; the solve itself is shared further through
+        :data:`synth.solvecache.DEFAULT_CACHE`).
 
     Notes
     -----
@@ -121,9 +123,13 @@ class VoicingCache:
         self.a4_hz = float(a4_hz)
         self.solves = 0
         self._tones = {}
+        self._notes = {}  # (patch_index, note) -> unweighted partials: shared by every velocity
 
     def tone(self, patch_index, note, velocity):
         """The :class:`Tone` of MIDI `note` (0..127) at `velocity` (1..127).
+
+        The object voiced for the note is prepared once (modes placed,
+        damped, cut at Nyquist); a velocity only reweights it.
 
         Raises
         ------
@@ -134,8 +140,11 @@ class VoicingCache:
         tone = self._tones.get(key)
         if tone is None:
             voiced = voice_patch(self.patches[patch_index], midi_note=int(note), velocity=int(velocity), a4_hz=self.a4_hz)
-            tone = Tone.from_table(partial_table(voiced))
-            self.solves += 1
+            unweighted = self._notes.get(key[:2])
+            if unweighted is None:
+                unweighted = self._notes[key[:2]] = unweighted_partials(voiced)
+                self.solves += 1
+            tone = Tone.from_table(weigh(voiced, unweighted))
             self._tones[key] = tone
         return tone
 
@@ -244,13 +253,16 @@ def voice_end(tone, *, onset, damper, release_t60, sample_rate):
     """
     amp = np.abs(tone.amplitude)
     level = 10.0 ** (-DECAY_DB / 20.0) * float(np.sum(amp))
-    free = decay_samples(amp, _sigma(tone.t60_s, sample_rate), level)
-    if damper is None or damper >= onset + free:
-        return onset + free
-    held = max(damper - onset, 0)
-    amp = amp * np.exp(-_sigma(tone.t60_s, sample_rate) * held)
-    release = _sigma(np.minimum(tone.t60_s, release_t60), sample_rate)
-    return onset + held + decay_samples(amp, release, level)
+    sigma = _sigma(tone.t60_s, sample_rate)
+    if damper is not None:
+        held = max(damper - onset, 0)
+        # The free decay ends at or before the damper exactly when the bound has
+        # reached the level by then (it only falls): only then is it needed.
+        if _envelope(amp, sigma, held) > level:
+            amp = amp * np.exp(-sigma * held)
+            release = _sigma(np.minimum(tone.t60_s, release_t60), sample_rate)
+            return onset + held + decay_samples(amp, release, level)
+    return onset + decay_samples(amp, sigma, level)
 
 
 def quantise_bends(samples, ratios, sample_rate, *, step_s=BEND_STEP_S):

@@ -298,6 +298,33 @@ def test_rerun_touches_nothing(library, tmp_path):
     assert stats(out) == before  # not one file rewritten, manifest and map included
 
 
+def test_idle_rerun_solves_no_physics(library, tmp_path, monkeypatch):
+    """Up to date is decided from the inputs' hashes and the file sizes: not one mode is solved or placed."""
+    from synth.resonators import string
+
+    spec, out = copy_of(library, tmp_path)
+    before = stats(out)
+
+    def no_physics(*args, **kwargs):
+        raise AssertionError("an idle re-run solved physics")
+
+    monkeypatch.setattr(string, "solve", no_physics)
+    monkeypatch.setattr(string, "retune", no_physics)
+    result = build_library(spec, output=str(out), workers=1, progress=False)
+    assert (result.rendered, result.skipped, result.exit_status) == (0, N_FILES, 0)
+    assert stats(out) == before
+
+
+def test_a_file_of_another_size_is_rendered_again(library, tmp_path):
+    spec, out = copy_of(library, tmp_path)
+    original = contents(out)
+    victim = out / wavs(out)[3]
+    victim.write_bytes(victim.read_bytes()[:-6])  # cut short: the recorded size no longer matches
+    result = build_library(spec, output=str(out), workers=1, progress=False)
+    assert (result.rendered, result.skipped) == (1, N_FILES - 1)
+    assert contents(out) == original
+
+
 def test_resume_reuses_the_recorded_gain(library, tmp_path):
     """Deleted files come back byte for byte (here rendered in this process, first run on a pool)."""
     spec, out = copy_of(library, tmp_path)

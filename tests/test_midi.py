@@ -492,6 +492,7 @@ class TestRenderVoice:
 
 
 def test_ten_thousand_notes_twenty_solves(tmp_path, patch, monkeypatch):
+    """20 (note, velocity) pairs: each note prepared once, each pair weighed once."""
     pairs = [(45 + k, 40 + 4 * k) for k in range(20)]
     events = []
     for i in range(10_000):
@@ -500,13 +501,31 @@ def test_ten_thousand_notes_twenty_solves(tmp_path, patch, monkeypatch):
     midi = read_midi(song(tmp_path / "many.mid", events, fmt=0))
     notes = perform(midi, sample_rate=RATE).notes
     assert len(notes) == 10_000
-    calls = []
-    original = voices.partial_table
-    monkeypatch.setattr(voices, "partial_table", lambda p: calls.append(1) or original(p))
+    prepared, weighed = [], []
+    unweighted, weigh = voices.unweighted_partials, voices.weigh
+    monkeypatch.setattr(voices, "unweighted_partials", lambda p: prepared.append(1) or unweighted(p))
+    monkeypatch.setattr(voices, "weigh", lambda p, u: weighed.append(1) or weigh(p, u))
     cache = VoicingCache([load_patch(patch)])
     for note in notes:
         cache.tone(0, note.key, note.velocity)
-    assert cache.solves == 20 and len(calls) == 20
+    assert cache.solves == 20 and len(prepared) == 20 and len(weighed) == 20
+
+
+def test_velocities_of_one_note_share_its_preparation(patch):
+    """Five velocities of one key: the object is prepared once, and each tone equals a fresh partial table."""
+    from synth.pipeline import partial_table
+    from synth.voicing import voice_patch
+
+    base = load_patch(patch)
+    cache = VoicingCache([base])
+    for velocity in (10, 40, 64, 100, 127):
+        tone = cache.tone(0, 57, velocity)
+        fresh = partial_table(voice_patch(base, midi_note=57, velocity=velocity))
+        keep = fresh.amplitude > 0
+        np.testing.assert_array_equal(tone.amplitude, fresh.amplitude[keep])
+        np.testing.assert_array_equal(tone.frequency_hz, fresh.frequency_hz[keep])
+        np.testing.assert_array_equal(tone.t60_s, fresh.t60_s[keep])
+    assert cache.solves == 1
 
 
 def test_summary_normalised_and_solves(tmp_path, patch, capsys):

@@ -54,11 +54,11 @@ from dataclasses import dataclass, replace
 from typing import ClassVar
 
 import numpy as np
-from scipy.optimize import brentq
 
 from ..modes import Solution, frozen_array
 from ..schema import Field, convert
 from . import bar_fe
+from . import timoshenko as exact_timoshenko
 from .common import SpecError, UnreachablePitch
 
 __all__ = [
@@ -312,6 +312,8 @@ def beam_roots(supports, n_modes):
     else:
         sign, guess = 1.0, (n + 0.5) * math.pi
 
+    from scipy.optimize import brentq
+
     def equation(x):  # cos x cosh x = sign, divided by cosh x
         return math.cos(x) - sign / math.cosh(x)
 
@@ -405,11 +407,40 @@ def solve_length(spec, pitch_hz):
             f"{shortest * 1e3:.4g} mm, {MIN_LENGTH_RATIO:g} x its largest cross-section dimension, the "
             "shortest piece bar theory covers): make it thinner or narrower, or lower the pitch"
         )
-    guess = shortest * math.sqrt(top / pitch_hz)  # thin-bar scaling f ~ 1 / L^2
+    # Thin-bar scaling f ~ 1 / L**2 gives the first step; secant steps on
+    # log f against log L (a straight line of slope -2 for a thin bar, nearly
+    # so for a thick or shaped one) then converge in a few solves.
+    x0, y0 = math.log(shortest), math.log(top / pitch_hz)
+    x1 = x0 + 0.5 * y0
+    y1 = _log_error(spec, x1, pitch_hz)
+    for _ in range(_SECANT_STEPS):
+        if abs(y1) <= _LENGTH_RTOL:
+            return math.exp(x1)
+        slope = (y1 - y0) / (x1 - x0) if x1 != x0 else -2.0
+        if not slope < 0.0:  # not monotone here: fall back to bracketing
+            break
+        x0, y0 = x1, y1
+        x1 = x1 - y1 / slope
+        y1 = _log_error(spec, x1, pitch_hz)
+    return _bracketed_length(spec, pitch_hz, shortest)
+
+
+_SECANT_STEPS = 12
+_LENGTH_RTOL = 1e-13  # |log(f / pitch)| at which the length is taken
+
+
+def _log_error(spec, log_length, pitch_hz):
+    return math.log(first_frequency(spec, math.exp(log_length)) / pitch_hz)
+
+
+def _bracketed_length(spec, pitch_hz, shortest):
+    """Brent's method on log(f / pitch) (the fallback of :func:`solve_length`)."""
+    from scipy.optimize import brentq
 
     def error(length):
         return math.log(first_frequency(spec, length) / pitch_hz)
 
+    guess = shortest * math.sqrt(first_frequency(spec, shortest) / pitch_hz)
     high = guess * 1.25
     while error(high) > 0.0:
         high *= 2.0
@@ -464,19 +495,22 @@ def _solve(spec, length, n, *, with_shift=True):
             shear_modulus=spec.shear_modulus, kappa=shear_coefficient(spec), density=spec.density,
         )
         return frequency, 1200.0 * np.log2(frequency / thin), shape, "closed form, Timoshenko (exact)", None
-    n_fe = min(n, FE_MAX_MODES)
-    thick_fe = bar_fe.spec_modes(spec, length, n_fe, True, shear_coefficient(spec))
-    ratio = thick_fe[0] / bar_fe.spec_modes(spec, length, n_fe, False, shear_coefficient(spec))[0]
-    if n > n_fe:
-        # Beyond the finite-element modes: the Timoshenko dispersion relation at
-        # the thin-bar wavenumber beta_n / L (exact for pinned-pinned ends;
-        # supports matter little this high up).
-        k = roots[n_fe:] / length
-        thick = _timoshenko_omega(k, radius, spec.youngs_modulus, spec.shear_modulus * shear_coefficient(spec), spec.density)
-        ratio = np.concatenate([ratio, thick / (k * k * radius * math.sqrt(spec.youngs_modulus / spec.density))])
-    frequency = thin * ratio
-    solver = "closed form x Timoshenko/Euler-Bernoulli ratio of two finite-element solves"
-    return frequency, 1200.0 * np.log2(ratio), shape, solver, len(thick_fe[3]) - 1
+    frequency = exact_timoshenko.uniform_frequencies(
+        spec.supports, n, length=length, radius_of_gyration=radius, youngs_modulus=spec.youngs_modulus,
+        kappa_shear=spec.shear_modulus * shear_coefficient(spec), density=spec.density, max_hz=MODE_CEILING_HZ,
+    )
+    if frequency.size == 0:  # even the lowest mode is above the ceiling: report it anyway
+        frequency = exact_timoshenko.uniform_frequencies(
+            spec.supports, 1, length=length, radius_of_gyration=radius, youngs_modulus=spec.youngs_modulus,
+            kappa_shear=spec.shear_modulus * shear_coefficient(spec), density=spec.density,
+        )
+    solver = "frequency equation, Timoshenko (exact; Han, Benaroya & Wei 1999)"
+    found = frequency.size
+
+    def shape_found(xi):  # thin-bar shapes of the modes found below the ceiling
+        return shape(xi)[:, :found]
+
+    return frequency, 1200.0 * np.log2(frequency / thin[:found]), shape_found, solver, None
 
 
 def _shear_note(labels, shift):

@@ -6,47 +6,40 @@ Per unit area (``r**2 = I / A``, ``s = kappa G``), with ``w(x) e^{i omega t}`` [
 ``rho w_tt = s (w'' - psi')`` and ``rho r**2 psi_tt = E r**2 psi'' + s (w' - psi)``.
 In units of the length ``L`` (``xi = x / L - 1/2``, ``W = w / L``), with
 ``Omega**2 = rho omega**2 L**4 / (E r**2)``, ``q = r**2 / L**2``, ``e = E / s``,
-``alpha = e q Omega**2`` and ``beta = q Omega**2``, a solution ``e^{lambda xi}`` needs
+``alpha = e q Omega**2`` and ``beta = q Omega**2``, ``e^{lambda xi}`` solves them if
 
     ``lambda**4 + (alpha + beta) lambda**2 + alpha beta - Omega**2 = 0``
 
-(``psi' = W'' + alpha W`` from the first equation, put in the derivative of
-the second).  Its roots are ``lambda**2 = -b**2`` and ``lambda**2 = a**2``:
+(``psi' = W'' + alpha W`` from the first, put in the derivative of the second):
+``lambda**2 = -b**2`` or ``a**2``, ``b**2 = (alpha + beta + sqrt((alpha - beta)**2
++ 4 Omega**2)) / 2``, ``a**2 = Omega**2 (1 - e q**2 Omega**2) / b**2``.  ``a**2``
+changes sign at the cut-off ``omega_c**2 = s / (rho r**2)``; above it ``a = i a~``
+(second spectrum).  The basis ``(W, psi)``, entire in ``a**2`` so smooth through
+the cut-off, is, for even ``W``, ``(cosh(a xi), (a**2 + alpha) sinh(a xi) / a)``
+and ``(cos(b xi), (alpha - b**2) sin(b xi) / b)``; for odd ``W``,
+``(a sinh(a xi), (a**2 + alpha) cosh(a xi))`` (at the cut-off the rotation
+``W = 0``, ``psi = alpha``) and ``(sin(b xi), (b**2 - alpha) cos(b xi) / b)``.
+Only end values enter; the ``a`` columns carry ``e^{-a/2}`` when ``a**2 > 0``
+(``cosh(a/2) e^{-a/2} = (1 + e^{-a}) / 2``: no overflow), rows are scaled by
+powers of ``b`` and each ``a`` column divided by the norm of its end values
+``(W, W', psi, psi')`` (never all zero): the determinant is O(1), continuous,
+and zero exactly at the natural frequencies.  Ends: pinned ``W = psi' = 0``,
+clamped ``W = psi = 0``, free ``psi' = W' - psi = 0``.  Symmetric supports split
+into an even and an odd 2x2 determinant; clamped-free is the 4x4, expanded by
+the 2x2 minors of its column pairs.
 
-    ``b**2 = (alpha + beta + sqrt((alpha - beta)**2 + 4 Omega**2)) / 2``,
-    ``a**2 = Omega**2 (1 - e q**2 Omega**2) / b**2``,
-
-so ``a**2`` changes sign at the cut-off ``omega_c**2 = s / (rho r**2)``;
-above it ``a = i a~`` (the second spectrum).  The basis (``W``, ``psi``), entire
-in ``a**2`` and so smooth through the cut-off, is
-
-    even ``W``: ``(cosh(a xi), (a**2 + alpha) sinh(a xi) / a)``, ``(cos(b xi), (alpha - b**2) sin(b xi) / b)``;
-    odd ``W``: ``(a sinh(a xi), (a**2 + alpha) cosh(a xi))``, ``(sin(b xi), (b**2 - alpha) cos(b xi) / b)``
-
-(``psi`` by ``psi' = W'' + alpha W``; at the cut-off the odd ``a`` function is
-the uniform rotation ``W = 0``, ``psi = alpha``).  Only end values
-(``xi = +-1/2``) enter; the ``a`` columns carry ``e^{-a/2}`` when ``a**2 > 0``
-(``cosh(a/2) e^{-a/2} = (1 + e^{-a}) / 2`` never overflows).  Rows are scaled
-by powers of ``b`` and each ``a`` column divided by the norm of its end values
-``(W, W', psi, psi')`` (never all zero), so the determinant is O(1),
-continuous, and zero exactly at the natural frequencies.  Ends: pinned
-``W = psi' = 0``, clamped ``W = psi = 0``, free ``psi' = W' - psi = 0``.  A
-symmetric support splits into an even and an odd 2x2 determinant;
-clamped-free is the 4x4, expanded by the 2x2 minors of its column pairs.
-
-Brackets come from the constraint theorem [2]_: one added constraint
-gives ``lambda_k(A) <= lambda_k(A + constraint) <= lambda_{k+1}(A)``.  Pinned
-is free plus ``W = 0``, clamped is pinned plus ``psi = 0``, so each symmetry
-class of free-free or clamped-clamped (half a bar, its middle sliding or
-pinned) is one constraint from the same class of pinned-pinned, known in
-closed form (:func:`_pinned_roots`, ``k = n pi``, ``n`` odd or even, plus the
-uniform rotation at ``omega_c``, ``k = 0``, in the odd class): the ``k``-th root
-of a class (free-free: after its rigid-body mode) lies between its ``k``-th
-and ``(k+1)``-th pinned values, one root in each bracket, whatever the two
-spectra do.  Clamped-free is pinned-free plus ``psi(0) = 0``; pinned-free is
-pinned-sliding (closed form, ``k = (m - 1/2) pi``) less ``psi(L) = 0``; so
-pinned-free roots separate the clamped-free ones (:func:`_clamped_free`).
-Roots are refined by the Anderson-Bjorck regula falsi [3]_.
+Brackets come from the constraint theorem [2]_: one added constraint gives
+``lambda_k(A) <= lambda_k(A + constraint) <= lambda_{k+1}(A)``.  Pinned is free
+plus ``W = 0``, clamped is pinned plus ``psi = 0``, so each symmetry class of
+free-free or clamped-clamped (half a bar, its middle sliding or pinned) is one
+constraint from the same class of pinned-pinned, known in closed form
+(:func:`_pinned_roots` at ``k = n pi``, ``n`` odd or even, and the uniform
+rotation at ``omega_c`` in the odd class): the ``k``-th root of a class
+(free-free: after its rigid-body mode) lies between its ``k``-th and
+``(k+1)``-th pinned values, one root per bracket whatever the two spectra do.
+Clamped-free is pinned-free plus ``psi(0) = 0``, and pinned-free is
+pinned-sliding (closed form, ``k = (m - 1/2) pi``) less ``psi(L) = 0``; see
+:func:`_clamped_free`.  Roots are refined by Anderson-Bjorck regula falsi [3]_.
 
 References
 ----------
@@ -77,12 +70,7 @@ _SCALAR_BRACKETS = 12  # this few open brackets are refined one by one in floats
 # Rows of end values, scaled: W, W'/b, psi/b, psi'/b**2, b (W' - psi)/alpha.
 _W, _WD, _PSI, _PSID, _SHEAR = range(5)
 _ROWS = {"free": (_PSID, _SHEAR), "clamped": (_W, _PSI), "pinned": (_W, _PSID)}
-# Laplace expansion by the column pairs (even | odd): row pairs of the even minor (the odd
-# minor takes the complement, the same list backwards) and their signs.
-_PAIRS = ((0, 1), (0, 2), (0, 3), (1, 2), (1, 3), (2, 3))
-_SIGNS = (1.0, -1.0, 1.0, 1.0, -1.0, 1.0)
-_PAIR_INDEX = tuple(np.array(v) for v in zip(*_PAIRS))
-_SIGN_ARRAY = np.array(_SIGNS)
+_PAIRS = ((0, 1), (0, 2), (0, 3), (1, 2), (1, 3), (2, 3))  # row pairs; complements in reverse order
 
 
 def cutoff_frequency(*, radius_of_gyration, kappa_shear, density):
@@ -102,8 +90,7 @@ def cutoff_frequency(*, radius_of_gyration, kappa_shear, density):
 
     Notes
     -----
-    ``omega_c = sqrt(kappa G / (rho r**2))``, the frequency of the uniform
-    rotation ``w = 0``, ``psi = const`` [1]_.
+    ``omega_c = sqrt(kappa G / (rho r**2))``: the uniform rotation ``w = 0``, ``psi = const`` [1]_.
     """
     return math.sqrt(kappa_shear / (density * radius_of_gyration**2)) / (2.0 * math.pi)
 
@@ -128,7 +115,7 @@ def _state(omega, q, e, xp):
     y = 0.5 * ((alpha + q * w2) + omega * xp.sqrt(q * q * (e - 1.0) ** 2 * w2 + 4.0))  # b**2
     z = w2 * (1.0 - e * q * q * w2) / y  # a**2, signed
     b = xp.sqrt(y)
-    grow = (z > 0.0) if xp is math else (True if (z > 0.0).all() else (False if (z <= 0.0).all() else z > 0.0))
+    grow = bool(z > 0.0) if xp is math else (True if (z > 0.0).all() else (False if (z <= 0.0).all() else z > 0.0))
     a = xp.sqrt(abs(z)) + 1e-300
     if grow is True:  # cosh(a/2) e^(-a/2), sinh(a/2) e^(-a/2) / a
         em = xp.expm1(-a)
@@ -173,31 +160,22 @@ def _class_det(omega, q, e, rows, odd, xp):
 def _full_det(omega, q, e, left, right, xp):
     """4x4 determinant, rows `left` at ``xi = -1/2`` and `right` at ``+1/2``.
 
-    Left-end values are the right-end ones with the odd columns negated, up
-    to a sign per row; Laplace expansion by the column pairs (even | odd).
+    Left-end values are the right-end ones with the odd columns negated (up to
+    a sign per row).  Laplace expansion by the column pairs (even | odd): the
+    sum of (even minor of rows i, j) (odd minor of the other two), signs folded.
     """
     st = _state(omega, q, e, xp)
-    values = [_entries(st, r) for r in left + right]
-    if xp is math:
-        ev = [(v[0], v[1]) for v in values]
-        od = [(-v[2], -v[3]) for v in values[:2]] + [(v[2], v[3]) for v in values[2:]]
-        m_ev = [ev[i][0] * ev[j][1] - ev[i][1] * ev[j][0] for i, j in _PAIRS]
-        m_od = [od[i][0] * od[j][1] - od[i][1] * od[j][0] for i, j in _PAIRS]
-        return sum(s * m_ev[p] * m_od[5 - p] for p, s in enumerate(_SIGNS)) / math.sqrt(st[9] * st[10])
-    v = np.array(np.broadcast_arrays(*[c for row in values for c in row])).reshape(4, 4, -1)
-    v[:2, 2:] *= -1.0
-    i, j = _PAIR_INDEX
-    minors = v[i, ::2] * v[j, 1::2] - v[i, 1::2] * v[j, ::2]  # (pair, even | odd, point)
-    return np.einsum("p,pn,pn->n", _SIGN_ARRAY, minors[:, 0], minors[::-1, 1]) / np.sqrt(st[9] * st[10])
+    r = [_entries(st, k) for k in left + right]
+    me = [r[i][0] * r[j][1] - r[i][1] * r[j][0] for i, j in _PAIRS]
+    mo = [r[i][2] * r[j][3] - r[i][3] * r[j][2] for i, j in _PAIRS]
+    total = me[0] * mo[5] + me[1] * mo[4] - me[2] * mo[3] - me[3] * mo[2] + me[4] * mo[1] + me[5] * mo[0]
+    return total / xp.sqrt(st[9] * st[10])
 
 
 def _bracket(f, lo, hi, flo, fhi):
-    """A bracket with a sign change for one known to hold exactly one root.
-
-    Without one, the root is at (within ``_NUDGE`` of) an end: an end whose
-    value is only rounding is nudged inward; failing that, the end with the
-    smaller ``|f|`` is returned as a zero-width bracket.
-    """
+    """A sign-changing bracket for one known to hold exactly one root: without a sign change the root
+    is at (within ``_NUDGE`` of) an end; an end whose value is only rounding is nudged inward, else the
+    end with the smaller ``|f|`` is returned as a zero-width bracket."""
     if flo * fhi < 0.0:
         return lo, hi, flo, fhi
     lo2, hi2 = lo * (1.0 + _NUDGE), hi * (1.0 - _NUDGE)
@@ -210,36 +188,40 @@ def _bracket(f, lo, hi, flo, fhi):
     return at, at, -1.0, 1.0
 
 
-def _iterate(f, lo, hi, flo, fhi):
-    """Anderson-Bjorck regula falsi [3]_ from a bracket, in floats: the root."""
-    for _ in range(_MAX_STEPS):
+def _iterate(f, lo, hi, flo, fhi, steps=_MAX_STEPS):
+    """Anderson-Bjorck regula falsi [3]_ from a bracket, in floats: the root, and the last bracket."""
+    for _ in range(steps):
         if abs(hi - lo) <= _TOL * abs(hi):
             break
         x = min(max((lo * fhi - hi * flo) / (fhi - flo), min(lo, hi)), max(lo, hi))
         fx = f(x)
         if fx == 0.0 or abs(x - hi) <= _TOL * abs(x):
-            return x
+            return x, x, x
         if fx * fhi < 0.0:
             lo, flo = hi, fhi
         else:
             m = 1.0 - fx / fhi
             flo *= m if m > 0.0 else 0.5
         hi, fhi = x, fx
-    return hi
+    return hi, lo, hi
 
 
 def _refine(make_f, lo, hi, flo, fhi):
     """Roots, one per bracket ``[lo[i], hi[i]]`` (end values `flo`, `fhi`), each holding exactly one.
 
-    ``make_f(math, i)`` is bracket ``i``'s determinant for floats,
-    ``make_f(np, None)`` all brackets' for arrays.  Regula falsi, Anderson-Bjorck
-    step (keep the newest point and the last of the other sign, scaling the
-    kept value by ``1 - f(new) / f(old)``, or 1/2), vectorised while many
-    brackets are open, then one by one.
+    ``make_f(math, i)`` is bracket ``i``'s determinant for floats, ``make_f(np, None)`` all brackets'
+    for arrays.  Anderson-Bjorck steps (keep the newest point and the last of the other sign, scaling
+    the kept value by ``1 - f(new) / f(old)``, or 1/2), vectorised while many brackets are open.
     """
+    if len(lo) <= _SCALAR_BRACKETS:
+        out = []
+        for i in range(len(lo)):
+            f = make_f(math, i)
+            out.append(_iterate(f, *_bracket(f, float(lo[i]), float(hi[i]), float(flo[i]), float(fhi[i])))[0])
+        return np.array(out)
     lo, hi, flo, fhi = (np.array(v, dtype=float) for v in (lo, hi, flo, fhi))
     for i in np.flatnonzero(~(flo * fhi < 0.0)):  # rare: a root at an end
-        lo[i], hi[i], flo[i], fhi[i] = _bracket(make_f(math, i), lo[i], hi[i], flo[i], fhi[i])
+        lo[i], hi[i], flo[i], fhi[i] = _bracket(make_f(math, i), *(float(v[i]) for v in (lo, hi, flo, fhi)))
     open_ = np.abs(hi - lo) > _TOL * np.abs(hi)
     f = make_f(np, None) if np.count_nonzero(open_) > _SCALAR_BRACKETS else None
     while np.count_nonzero(open_) > _SCALAR_BRACKETS:
@@ -253,7 +235,7 @@ def _refine(make_f, lo, hi, flo, fhi):
         hi, fhi = x, fx
         open_ &= np.abs(hi - lo) > _TOL * np.abs(hi)
     for i in np.flatnonzero(open_):
-        hi[i] = _iterate(make_f(math, i), float(lo[i]), float(hi[i]), float(flo[i]), float(fhi[i]))
+        hi[i] = _iterate(make_f(math, i), float(lo[i]), float(hi[i]), float(flo[i]), float(fhi[i]))[0]
     return hi
 
 
@@ -266,12 +248,13 @@ def _evaluate(make_f, x):
 
 def _dimensionless(length, radius_of_gyration, youngs_modulus, kappa_shear, density):
     """``q = r**2 / L**2``, ``e = E / kappa G`` and the unit of ``Omega`` in rad/s."""
-    for name, value in (("length", length), ("radius_of_gyration", radius_of_gyration),
-                        ("youngs_modulus", youngs_modulus), ("kappa_shear", kappa_shear), ("density", density)):
-        if not (isinstance(value, (int, float)) and math.isfinite(value) and value > 0.0):
+    names = ("length", "radius_of_gyration", "youngs_modulus", "kappa_shear", "density")
+    values = [length, radius_of_gyration, youngs_modulus, kappa_shear, density]
+    for name, value in zip(names, values):
+        if not (isinstance(value, (int, float, np.number)) and math.isfinite(value) and value > 0.0):
             raise ValueError(f"{name} must be a positive finite number, got {value!r}")
-    unit = radius_of_gyration / length**2 * math.sqrt(youngs_modulus / density)
-    return (radius_of_gyration / length) ** 2, youngs_modulus / kappa_shear, unit
+    length, r, youngs, shear, density = map(float, values)
+    return (r / length) ** 2, youngs / shear, r / length**2 * math.sqrt(youngs / density)
 
 
 def frequency_determinant(supports, frequency_hz, *, length, radius_of_gyration, youngs_modulus,
@@ -349,6 +332,8 @@ def uniform_frequencies(supports, n_modes, *, length, radius_of_gyration, youngs
         raise ValueError(f"n_modes must be a positive integer, got {n_modes!r}")
     n_modes = int(n_modes)
     q, e, unit = _dimensionless(length, radius_of_gyration, youngs_modulus, kappa_shear, density)
+    if not max_hz > 0.0:
+        raise ValueError(f"max_hz must be positive, got {max_hz!r}")
     top = 2.0 * math.pi * max_hz / unit if max_hz < math.inf else math.inf  # max_hz as Omega
     n_k = n_modes + 4  # wavenumbers; closed-form roots below `top` have k < b(top)
     if top < math.inf:
@@ -379,33 +364,29 @@ def _symmetric(supports, n_modes, top, q, e, lower, upper, every):
     i = np.arange(len(points) - 1)
     i = i[i != len(mus[0]) - 1]  # brackets [points[i], points[i + 1]] within a class
     rows = _ROWS[supports.split("-")[0]]
-    value = _evaluate(_class_maker(rows, odd, q, e), points)
-    return np.sort(_refine(_class_maker(rows, odd[i], q, e), points[i], points[i + 1], value[i], value[i + 1]))
+    value = _evaluate(_maker(_class_det, q, e, rows, odd), points)
+    return np.sort(_refine(_maker(_class_det, q, e, rows, odd[i]), points[i], points[i + 1], value[i], value[i + 1]))
 
 
-def _class_maker(rows, odd, q, e):
-    """``make_f`` for :func:`_refine`: point or bracket ``i`` in the even or odd class (``odd[i]``)."""
+def _maker(det, q, e, first, second):
+    """``make_f`` for :func:`_refine`: ``det(x, q, e, first, second, xp)``; an array `second` is per point."""
     def make(xp, index):
-        cls = odd if index is None else bool(odd[index])
-        return lambda x: _class_det(x, q, e, rows, cls, xp)
+        arg = bool(second[index]) if index is not None and isinstance(second, np.ndarray) else second
+        return lambda x: det(x, q, e, first, arg, xp)
     return make
-
-
-def _full_maker(left, q, e):
-    """``make_f`` for :func:`_refine`: the 4x4 determinant, `left` rows at x = 0, free at x = L."""
-    return lambda xp, index: (lambda x: _full_det(x, q, e, left, _ROWS["free"], xp))
 
 
 def _clamped_free(n_modes, top, q, e, n_k):
     """Clamped-free roots (``Omega``), separated by pinned-free roots.
 
     Pinned-free roots ``P_k`` satisfy ``lambda_{k-1} <= P_k <= lambda_k``
-    (clamped-free ``lambda``) and ``P_{k+1}`` lies in ``[nu_k, nu_{k+1}]``
-    (pinned-sliding ``nu``, closed form).  Estimates of ``P_2 .. P_K`` (the
-    mid-points of those brackets in ``sqrt(Omega)``) are tried first, with
-    ``P_1 -> Omega_lb <= lambda_1`` and ``P_{K+1}`` solved exactly: if each of the
-    ``K`` intervals shows a sign change, each holds an odd number of roots,
-    and their sum, at most ``K``, forces one each.  Else the exact ``P_k`` are used.
+    (clamped-free ``lambda``; ``P_1 = 0``) and ``P_{k+1}`` lies in
+    ``[nu_k, nu_{k+1}]`` (pinned-sliding ``nu``, closed form).  Separators are
+    tried first: ``Omega_lb <= lambda_1``, estimates of ``P_2 .. P_K`` (mid-points
+    of their brackets in ``sqrt(Omega)``), and a value ``<= P_{K+1}`` (lower end
+    of its bracket).  If each of the ``K`` intervals shows a sign change, each
+    holds an odd number of roots, and their sum, at most ``K`` roots below
+    ``P_{K+1}``, forces one each.  Otherwise the exact ``P_k`` separate them.
     """
     lower, upper = _pinned_roots((np.arange(1, n_k + 2) - 0.5) * math.pi, q, e)
     nu = np.sort(np.concatenate([lower, upper]))
@@ -414,15 +395,18 @@ def _clamped_free(n_modes, top, q, e, n_k):
     # w and psi, and w'**2 <= 2 (w' - psi)**2 + 2 psi**2: Omega_1**2 >= min(1/(2 e q c), 1/((2 c + q) c)).
     c = (2.0 / math.pi) ** 2
     floor = math.sqrt(min(1.0 / (2.0 * e * q * c), 1.0 / ((2.0 * c + q) * c)))
-    pinned, clamped = _full_maker(_ROWS["pinned"], q, e), _full_maker(_ROWS["clamped"], q, e)
+    pinned = _maker(_full_det, q, e, _ROWS["pinned"], _ROWS["free"])
+    clamped = _maker(_full_det, q, e, _ROWS["clamped"], _ROWS["free"])
     f_last = pinned(math, None)
-    last = _iterate(f_last, *_bracket(f_last, nu[count - 1], nu[count], f_last(nu[count - 1]), f_last(nu[count])))
+    lo, hi = float(nu[count - 1]), float(nu[count])
+    last = _bracket(f_last, lo, hi, f_last(lo), f_last(hi))
     guess = (0.5 * (np.sqrt(nu[: count - 1]) + np.sqrt(nu[1:count]))) ** 2
     for exact in (False, True):
         if exact:
             lo, hi = nu[: count - 1], nu[1:count]
             guess = _refine(pinned, lo, hi, _evaluate(pinned, lo), _evaluate(pinned, hi))
-        sep = np.concatenate([[floor], guess, [last]])
+        # P_{K+1} from below: the lower end of its bracket after a few steps, or the root.
+        sep = np.concatenate([[floor], guess, [min(_iterate(f_last, *last, steps=_MAX_STEPS if exact else 3))]])
         value = _evaluate(clamped, sep)
         if exact or (np.all(np.diff(sep) > 0.0) and np.all(value[:-1] * value[1:] < 0.0)):
             break
