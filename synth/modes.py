@@ -23,6 +23,8 @@ __all__ = [
     "ModeSet",
     "PartialTable",
     "EvenNodes",
+    "LazyColumn",
+    "take_column",
     "frozen_array",
     "table_to_dict",
     "table_to_text",
@@ -94,8 +96,48 @@ class EvenNodes:
         return EvenNodes(self.orders[index])
 
 
-def _take(values, index):
-    """Column `values` at the positions in `index` (lazy columns stay lazy; a leading run is a slice)."""
+class LazyColumn:
+    """A report column computed on first use: the same values every time, in one batch.
+
+    Parameters
+    ----------
+    compute : callable
+        ``compute() -> sequence`` of the whole column (called at most once;
+        the result is shared by every :meth:`take` of this column).
+    size : int
+        Length of the whole column.
+
+    Columns that only the report needs (a plate's nodal-circle radii) cost
+    nothing in a render, a MIDI file or a batch job.
+    """
+
+    def __init__(self, compute, size, index=None, _store=None):
+        self._compute = compute
+        self._store = {} if _store is None else _store
+        self._index = np.arange(size) if index is None else np.asarray(index, dtype=np.int64)
+
+    def _values(self):
+        if "values" not in self._store:
+            self._store["values"] = tuple(self._compute())
+        return self._store["values"]
+
+    def __len__(self):
+        return len(self._index)
+
+    def __getitem__(self, i):
+        return self._values()[int(self._index[i])]
+
+    def __iter__(self):
+        values = self._values()
+        return (values[int(k)] for k in self._index)
+
+    def take(self, index):
+        """The column of the entries at `index` (still lazy, sharing the computation)."""
+        return LazyColumn(self._compute, 0, self._index[np.asarray(index, dtype=np.int64)], self._store)
+
+
+def take_column(values, index):
+    """Column `values` (a tuple or a lazy column) at the positions in `index` (lazy columns stay lazy)."""
     take = getattr(values, "take", None)
     if take is not None and not isinstance(values, (np.ndarray, tuple)):
         return take(index)
@@ -207,7 +249,7 @@ class ModeSet:
             labels=tuple(self.labels[i] for i in index),
             excitation_shape=frozen_array(self.excitation_shape[index]),
             pickup_shape=frozen_array(self.pickup_shape[index]),
-            columns={k: _take(v, index) for k, v in self.columns.items()},
+            columns={k: take_column(v, index) for k, v in self.columns.items()},
             parameters=dict(self.parameters),
             warnings=self.warnings,
         )
@@ -298,7 +340,11 @@ def table_to_dict(table):
     """The partial table as the JSON object described in DESIGN.md."""
     modes = []
     ratio, cents = table.ratio, table.cents_from_harmonic
-    columns = {k: v for k, v in table.columns.items() if not getattr(v, "report_only", False)}
+    columns = {
+        k: (list(v) if isinstance(v, LazyColumn) else v)
+        for k, v in table.columns.items()
+        if not getattr(v, "report_only", False)
+    }
     for i in range(len(table.frequency_hz)):
         mode = {
             "index": i + 1,

@@ -637,3 +637,17 @@ def test_example_patches(capsys):
         report = json.loads(capsys.readouterr().out)
         assert report["resonator"] == "plate" and len(report["modes"]) >= 8
         assert all(m["label"].startswith("(") for m in report["modes"])
+
+
+@pytest.mark.parametrize("edges, nu", [("clamped", 0.3), ("free", 0.33), ("pinned", 0.3), ("free", -0.2)])
+def test_closed_form_norms_match_quadrature(edges, nu):
+    """Lommel's integrals (the mean square of each circular-plate shape in closed form) against a
+    composite Gauss-Legendre quadrature of R(x)**2 x over the radius, fine enough to be exact here."""
+    from synth.resonators import plate_circle
+
+    lam, order, _, coefficient = plate_circle.circle_lambdas(edges, nu, 60)
+    closed = plate_circle._mean_squares(lam, order, coefficient)
+    x, w = plate_circle._composite_rule(4.0 * float(np.max(lam)))  # four times the panels the node search uses
+    r = plate_circle._radial(order[:, None], lam[:, None], coefficient[:, None], x[None, :])
+    quadrature = np.where(order == 0, 2.0, 1.0) * ((r**2 * x) @ w)
+    np.testing.assert_allclose(closed, quadrature, rtol=1e-11)

@@ -67,9 +67,11 @@ def test_golden_tables_are_kept(case):
         np.testing.assert_array_equal(new["phase"], case["phase"])
         return
     for key in ARRAYS:
-        # Floating-point rounding only (a quadrature's panel layout can move the
-        # last bit of a circular plate's normalisation): 1e-13 relative.
-        np.testing.assert_allclose(new[key], case[key], rtol=1e-13, atol=0, err_msg=key)
+        # Floating-point rounding only: 1e-13 relative; circular plates 1e-12 (their
+        # shapes are now normalised by Lommel's integrals in closed form, where a
+        # quadrature did it, and their roots found by another bracketing method).
+        tolerance = 1e-12 if case["patch"].startswith("plate") else 1e-13
+        np.testing.assert_allclose(new[key], case[key], rtol=tolerance, atol=0, err_msg=key)
 
 
 @pytest.mark.parametrize("name", sorted(EXACT_TIMOSHENKO))

@@ -18,7 +18,7 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
-from ..modes import ModeSet, frozen_array
+from ..modes import ModeSet, frozen_array, take_column
 from .common import SpecError
 
 __all__ = ["OUTLINES", "check_outline", "frame_angle", "circle_rows", "PairedSolution"]
@@ -148,7 +148,7 @@ class PairedSolution:
 
         columns = {}
         for key, values in self.columns.items():
-            columns[key] = tuple(values[i] for i in index)
+            columns[key] = take_column(values, index)
             if key == "nodal_lines":
                 columns["orientation"] = tuple(o for _, o in rows)
         parameters = dict(self.parameters)

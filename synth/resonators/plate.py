@@ -56,6 +56,7 @@ References
 """
 from __future__ import annotations
 
+import functools
 import math
 from dataclasses import dataclass, replace
 from typing import ClassVar
@@ -236,7 +237,13 @@ def _hz_per_lambda2(spec, thickness):
 def _lowest_lambda2(spec):
     if spec.shape == "rectangle":
         return math.pi**2 * (1.0 + (spec.width / spec.height) ** 2)
-    lam, _, _, _ = circle_lambdas(spec.edges, spec.poisson_ratio, 1)
+    return _lowest_circle_lambda2(spec.edges, spec.poisson_ratio)
+
+
+@functools.lru_cache(maxsize=64)
+def _lowest_circle_lambda2(edges, nu):
+    """lambda**2 of a circular plate's lowest mode (a constant of the edge and nu)."""
+    lam, _, _, _ = circle_lambdas(edges, nu, 1)
     return float(lam[0] ** 2)
 
 

@@ -7,14 +7,23 @@ shapes are ``w = [J_n(lambda x) + C I_n(lambda x)] cos(n theta)``, and the two
 edge conditions at ``x = 1`` (clamped, pinned or free) are linear equations in
 (1, C) whose determinant is the frequency equation.  The modified Bessel
 function is carried scaled (``ive = I_n e**-x``) so nothing overflows at large
-``lambda``.  Roots are bracketed on a fine grid of lambda and polished with
-Brent's method; shapes are normalised by composite Gauss-Legendre quadrature
-over the disc to a mean square of 1.  Everything here is per unit radius and
+``lambda``.  Roots are bracketed on a fine grid of lambda and polished
+together by Chandrupatla's method [2]_; shapes are normalised to a mean square
+of 1 over the disc by Lommel's integrals [3]_ (closed forms in the edge values
+of J_n, I_n and their derivatives), and nodal circles are found, when a
+report asks for them, from the sign changes of the radial shape.  Everything here is per unit radius and
 independent of the thickness, which :mod:`.plate` applies.
 
 References
 ----------
 .. [1] A. W. Leissa, *Vibration of Plates*, NASA SP-160 (1969).
+.. [2] T. R. Chandrupatla, "A new hybrid quadratic/bisection algorithm for
+   finding the zero of a nonlinear function without using derivatives",
+   Adv. Eng. Softw. 28(3), 145-149 (1997) (from memory; the method of
+   :func:`scipy.optimize.elementwise.find_root`).
+.. [3] G. N. Watson, *A Treatise on the Theory of Bessel Functions*, 2nd ed.,
+   Cambridge (1944), sec. 5.11 (Lommel's integrals; section from memory,
+   the three integrals used are checked against quadrature in the tests).
 """
 from __future__ import annotations
 
@@ -22,8 +31,9 @@ import functools
 import math
 
 import numpy as np
-from scipy.optimize import brentq
 from scipy.special import ive, jv
+
+from ..modes import LazyColumn
 
 
 __all__ = ["circle_lambdas", "circle_pairs"]
@@ -31,11 +41,13 @@ __all__ = ["circle_lambdas", "circle_pairs"]
 #: Lowest lambda scanned, and the grid step of the root bracketing.  The
 #: lowest elastic root of any circle is near 2.2 (pinned (0,0)); roots of one
 #: order n are at least about 3 apart (measured: 3.11 up to lambda 156 for
-#: nu = -0.5 ... 0.5), so a step of 0.2 brackets each root alone.
+#: nu = -0.5 ... 0.5), so a step of 1 brackets each root alone (three steps apart at least).
 LAMBDA_FLOOR = 0.5
-LAMBDA_STEP = 0.2
+LAMBDA_STEP = 1.0
 #: False-position steps that polish each bracketed nodal radius.
 NODE_REFINE_STEPS = 5
+#: Relative tolerance of the frequency roots.
+ROOT_RTOL = 1e-15
 #: Sign changes of R between values below this fraction of its peak are
 #: underflow noise near the centre, not nodal circles.
 NODE_FLOOR = 1e-8
@@ -68,7 +80,7 @@ def _bessel_columns(n, lam):
 def _edge_rows(n, lam, edges, nu):
     """The two edge conditions as rows (J coefficient, scaled-I coefficient)."""
     j, jp, jpp, i, ip, ipp = _bessel_columns(n, lam)
-    nn = float(n * n)
+    nn = np.asarray(n, dtype=float) ** 2
     if edges == "clamped" or edges == "pinned":
         first = (j, i)  # w = 0
         if edges == "clamped":
@@ -87,27 +99,60 @@ def _characteristic(lam, n, edges, nu):
 
 
 def _shape_coefficient(n, lam, edges, nu):
-    """C-tilde: w ~ J_n(lam x) + C-tilde ive(n, lam x) exp(lam (x - 1))."""
-    first, second = _edge_rows(n, lam, edges, nu)
+    """C-tilde: w ~ J_n(lam x) + C-tilde ive(n, lam x) exp(lam (x - 1)); broadcasts."""
+    (a1, b1), (a2, b2) = _edge_rows(n, lam, edges, nu)
     # Use the row with the larger I entry relative to its size: better conditioned.
-    row = max((first, second), key=lambda r: abs(r[1]) / math.hypot(*r))
-    return -row[0] / row[1]
+    first = np.abs(b1) / np.hypot(a1, b1) >= np.abs(b2) / np.hypot(a2, b2)
+    return np.where(first, -a1 / b1, -a2 / b2)
 
 
-def _roots_of_order(n, edges, nu, lam_max):
-    """Roots lambda in (floor, lam_max] of the frequency equation of order n."""
-    start = max(LAMBDA_FLOOR, 0.5 * n)
-    if start >= lam_max:
-        return []
-    grid = np.arange(start, lam_max + LAMBDA_STEP, LAMBDA_STEP)
+def _refine(lo, hi, order, edges, nu):
+    """Roots of the frequency equation in the brackets ``[lo, hi]`` (a sign change each), all at once.
+
+    Chandrupatla's method on arrays (:func:`scipy.optimize.elementwise.find_root`:
+    one Bessel evaluation per step for every bracket still open), to
+    :data:`ROOT_RTOL`: the roots of a scalar Brent search per bracket to ~1e-14.
+    """
+    from scipy.optimize.elementwise import find_root
+
+    def characteristic(lam, n):
+        with np.errstate(all="ignore"):
+            return _characteristic(lam, n, edges, nu)
+
+    result = find_root(characteristic, (lo, hi), args=(order,),
+                       tolerances={"xatol": 0.0, "xrtol": ROOT_RTOL, "fatol": 0.0, "frtol": 0.0})
+    return np.asarray(result.x, dtype=float)
+
+
+def _brackets(edges, nu, lam_max):
+    """Brackets ``(lo, hi, order)`` of every root up to at least `lam_max`, sorted by order then lambda.
+
+    One grid per order (step :data:`LAMBDA_STEP`, from just below its first
+    root), all evaluated together; a sign change brackets a root, and a grid
+    point on a root is its own bracket (``lo == hi``).  Orders whose first
+    root lies above `lam_max` are not scanned.
+    """
+    grids, orders = [], []
+    for n in range(int(lam_max / ORDER_MARGIN) + 2):
+        start = max(LAMBDA_FLOOR, ORDER_MARGIN * n)  # below the first root of the order
+        if start >= lam_max:
+            continue
+        grid = np.arange(start, lam_max + LAMBDA_STEP, LAMBDA_STEP)
+        grids.append(grid)
+        orders.append(np.full(grid.size, n))
+    if not grids:
+        return np.empty(0), np.empty(0), np.empty(0, dtype=int)
+    grid, order = np.concatenate(grids), np.concatenate(orders)
     with np.errstate(all="ignore"):
-        values = _characteristic(grid, n, edges, nu)
-    roots = []
+        values = _characteristic(grid, order, edges, nu)
     sign = np.sign(values)
-    for k in np.flatnonzero(sign[:-1] * sign[1:] < 0):
-        roots.append(brentq(_characteristic, grid[k], grid[k + 1], args=(n, edges, nu), xtol=1e-13, rtol=1e-14))
-    roots.extend(grid[sign == 0])
-    return sorted(r for r in roots if r <= lam_max)
+    change = np.flatnonzero((sign[:-1] * sign[1:] < 0) & (order[:-1] == order[1:]))
+    exact = np.flatnonzero(sign == 0)
+    lo = np.concatenate([grid[change], grid[exact]])
+    hi = np.concatenate([grid[change + 1], grid[exact]])
+    order = np.concatenate([order[change], order[exact]])
+    sort = np.lexsort((lo, order))
+    return lo[sort], hi[sort], order[sort]
 
 
 def circle_lambdas(edges, nu, n_modes):
@@ -132,24 +177,30 @@ def circle_lambdas(edges, nu, n_modes):
         C-tilde of each mode shape (see :func:`_shape_coefficient`).
     """
     # Pairs (n, s) below lambda: about lambda**2 / 8 (Weyl's law, lambda**2 / 4
-    # shapes, with each n > 0 pair counted once).
-    lam_max = math.sqrt(8.0 * n_modes) + 6.0
+    # shapes, with each n > 0 pair counted once); the search grows if short.
+    lam_max = math.sqrt(8.0 * n_modes) + 3.0
     while True:
-        found = []
-        for n in range(int(lam_max / ORDER_MARGIN) + 2):
-            # A free plate's s = 0 member of orders 0 and 1 is a rigid-body
-            # mode (not scanned): its k-th elastic root has k + 1 nodal circles.
-            shift = 1 if edges == "free" and n < 2 else 0
-            found.extend((root, n, k + shift) for k, root in enumerate(_roots_of_order(n, edges, nu, lam_max)))
-        if len(found) >= n_modes:
+        lo, hi, order = _brackets(edges, nu, lam_max)
+        if np.count_nonzero(hi <= lam_max) >= n_modes:
             break
         lam_max *= 1.3
-    found.sort()
-    found = found[:n_modes]
-    lam = np.array([f[0] for f in found])
-    order = np.array([f[1] for f in found], dtype=int)
-    circles = np.array([f[2] for f in found], dtype=int)
-    coefficient = np.array([_shape_coefficient(n, x, edges, nu) for x, n in zip(lam, order)])
+    # The k-th bracket of an order holds its k-th root.  A free plate's s = 0
+    # member of orders 0 and 1 is a rigid-body mode (not scanned): its k-th
+    # elastic root has k + 1 nodal circles.
+    first_of_order = np.searchsorted(order, order, side="left")
+    circles = np.arange(order.size) - first_of_order + np.where((edges == "free") & (order < 2), 1, 0)
+    # Only brackets that can hold one of the n_modes lowest roots are refined:
+    # n_modes roots lie at or below the n_modes-th smallest upper end.
+    bound = np.partition(hi, n_modes - 1)[n_modes - 1]
+    candidate = np.flatnonzero(lo < bound) if n_modes < lo.size else np.arange(lo.size)
+    lam = lo[candidate].copy()
+    open_ = hi[candidate] > lo[candidate]
+    pick = candidate[open_]
+    lam[open_] = _refine(lo[pick], hi[pick], order[pick], edges, nu)
+    ranking = np.lexsort((order[candidate], lam))[:n_modes]  # by lambda, ties by order
+    lowest = candidate[ranking]
+    lam, order, circles = lam[ranking], order[lowest], circles[lowest]
+    coefficient = _shape_coefficient(order, lam, edges, nu)
     return lam, order, circles, coefficient
 
 
@@ -162,7 +213,7 @@ def _radial(n, lam, coefficient, x):
 def _composite_rule(lam_max):
     """Nodes and weights on [0, 1]: a Gauss-Legendre rule on panels of about
     QUADRATURE_PANEL_RADIANS / lam_max each, so each panel holds about one
-    oscillation of R**2."""
+    oscillation of R**2 (used to find nodal circles, and by tests)."""
     n_panels = 1 + int(math.ceil(lam_max / QUADRATURE_PANEL_RADIANS))
     base, base_weights = np.polynomial.legendre.leggauss(QUADRATURE_POINTS)
     edges = np.linspace(0.0, 1.0, n_panels + 1)
@@ -172,23 +223,40 @@ def _composite_rule(lam_max):
     return nodes, weights
 
 
-def _norms_and_nodes(lam, order, coefficient):
-    """Mean square over the disc and nodal-circle radii of each unnormalised shape.
+def _mean_squares(lam, order, coefficient):
+    """Mean square over the disc of each unnormalised shape ``R(x) cos(n theta)``, in closed form.
 
-    One evaluation of R on the quadrature nodes serves both: the mean square
-    ``(1/pi) int int R**2 cos**2(n theta) x dx dtheta`` and, from the sign
-    changes of R between neighbouring nodes (at least 4 nodes between nodal
-    circles, which are about pi / lambda apart), the brackets of the nodal
-    radii, refined by vectorised false position.  The edge x = 1 is not a node
-    of the rule, so a clamped or pinned boundary is not counted.
+    ``R = J_n(lam x) + C e^-lam I_n(lam x)`` (C the scaled coefficient), and
+    ``(1/pi) int int R**2 cos**2(n theta) x dx dtheta`` is ``2 int_0^1 R**2 x dx``
+    for n = 0 and ``int_0^1 R**2 x dx`` otherwise, with Lommel's integrals
+    (:data:`__doc__` [3]): ``int J**2 x = (J'**2 + (1 - n**2/lam**2) J**2) / 2``,
+    ``int I**2 x = ((1 + n**2/lam**2) I**2 - I'**2) / 2`` and
+    ``int J I x = (J I' - J' I) / (2 lam)``, all at ``lam`` (the scaled I
+    carrying its e^-lam).
     """
-    norms = np.empty(len(lam))
+    j, jp, _, i, ip, _ = _bessel_columns(order, lam)
+    jp, ip = jp / lam, ip / lam  # derivatives in z = lam x
+    ratio = (order / lam) ** 2
+    jj = 0.5 * (jp * jp + (1.0 - ratio) * j * j)
+    ii = 0.5 * ((1.0 + ratio) * i * i - ip * ip)
+    ji = (j * ip - jp * i) / (2.0 * lam)
+    radial = jj + 2.0 * coefficient * ji + coefficient * coefficient * ii
+    return np.where(order == 0, 2.0, 1.0) * radial
+
+
+def _nodal_radii(lam, order, coefficient):
+    """Nodal-circle radii (fractions of the radius) of each shape: a tuple per mode.
+
+    From the sign changes of R on the composite Gauss-Legendre nodes (at least
+    4 between nodal circles, which are about pi / lambda apart), refined by
+    vectorised false position.  The edge x = 1 is not a node of the rule, so
+    a clamped or pinned boundary is not counted.
+    """
     radii = [()] * len(lam)
     for start in range(0, len(lam), SHAPE_BLOCK):
         block = np.arange(start, min(start + SHAPE_BLOCK, len(lam)))
-        x, weights = _composite_rule(float(np.max(lam[block])))
+        x, _ = _composite_rule(float(np.max(lam[block])))
         r = _radial(order[block, None], lam[block, None], coefficient[block, None], x[None, :])
-        norms[block] = np.where(order[block] == 0, 2.0, 1.0) * ((r**2 * x) @ weights)
         # Sign changes, except among values that have underflowed near the
         # centre (R ~ x**n there): a real node has a sizeable neighbour.
         size = np.maximum(np.abs(r[:, :-1]), np.abs(r[:, 1:]))
@@ -205,7 +273,8 @@ def _norms_and_nodes(lam, order, coefficient):
         roots = x0 - r0 * (x1 - x0) / (r1 - r0)
         for i in block:
             radii[i] = tuple(float(v) for v in roots[mode == i])
-    return norms, radii
+    return tuple(radii)
+
 
 @functools.lru_cache(maxsize=16)
 def _circle_table(edges, nu, n_modes):
@@ -216,11 +285,11 @@ def _circle_table(edges, nu, n_modes):
     Cached: retuning (MIDI notes, batch jobs) only changes the thickness.
     """
     lam, order, circles, coefficient = circle_lambdas(edges, nu, n_modes)
-    norms, radii = _norms_and_nodes(lam, order, coefficient)
-    arrays = (lam, order, circles, coefficient, 1.0 / np.sqrt(norms))
+    arrays = (lam, order, circles, coefficient, 1.0 / np.sqrt(_mean_squares(lam, order, coefficient)))
     for array in arrays:
         array.flags.writeable = False
-    return (*arrays, tuple(radii))
+    radii = LazyColumn(lambda: _nodal_radii(lam, order, coefficient), len(lam))
+    return (*arrays, radii)
 
 
 def circle_pairs(spec, n_modes):
