@@ -12,6 +12,7 @@ from __future__ import annotations
 import math
 import os
 import tempfile
+import threading
 from pathlib import Path
 
 import numpy as np
@@ -93,6 +94,18 @@ def normalise(signal, *, peak_db, bit_depth=24):
     return (signal * gain).astype(np.float32), 20.0 * math.log10(gain)
 
 
+_SCRATCH = threading.local()  # per-thread float64 buffer of quantise (fresh pages cost more than the work)
+
+
+def _scratch_float64(shape):
+    size = math.prod(shape)
+    buf = getattr(_SCRATCH, "values", None)
+    if buf is None or buf.size < size:
+        buf = np.empty(size)
+        _SCRATCH.values = buf
+    return buf[:size].reshape(shape)
+
+
 def quantise(signal, bit_depth, *, seed=DITHER_SEED):
     """The samples to write for `bit_depth`: int16 (TPDF-dithered), int32 or float32.
 
@@ -108,7 +121,8 @@ def quantise(signal, bit_depth, *, seed=DITHER_SEED):
         values = np.round(np.asarray(signal, dtype=np.float64) * 32767.0 + tpdf)
         return np.clip(values, -32768, 32767).astype(np.int16)
     if bit_depth == 24:
-        values = np.multiply(signal, 8388607.0, dtype=np.float64)  # one pass: no float64 copy first
+        values = _scratch_float64(np.shape(signal))
+        np.multiply(signal, 8388607.0, out=values, dtype=np.float64)  # one pass: no float64 copy first
         np.rint(values, out=values)
         np.clip(values, -8388608, 8388607, out=values)
         ints = values.astype(np.int32)

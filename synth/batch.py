@@ -37,9 +37,12 @@ How a run goes
 from __future__ import annotations
 
 import io
+import itertools
 import math
+import os
 import signal
 import sys
+import tempfile
 import threading
 import time
 from dataclasses import dataclass
@@ -51,6 +54,7 @@ from .audio import SUBTYPES, atomic_output, normalise, peak_dbfs, quantise
 from .damping import LN1000
 from .engine import render_modes
 from .errors import ModalError, PatchError, RenderError
+from .executors import Inline as _Inline
 from .executors import backend, default_workers
 from .libindex import MANIFEST_NAME, index_texts, read_manifest
 from .library import (
@@ -73,6 +77,9 @@ __all__ = ["LibraryResult", "build_library", "summary_lines", "default_workers",
 PEAK_PREFIX_S = 0.25  # s, first span rendered when measuring a job's peak (doubled until exact)
 MANIFEST_INTERVAL_S = 30.0  # s, the manifest is also rewritten this often during a long run
 MAX_BATCH_JOBS = 16  # jobs handed to a worker at a time (fewer round trips; a few MB of WAV back)
+PREFETCH_JOBS = 1024  # jobs' tables made ready before the first render task is handed out
+#: What a local worker needs beyond this module, imported once in the fork server.
+WORKER_PRELOAD = ("soundfile", "threadpoolctl", "synth.loudness")
 
 # ---------------------------------------------------------------------------
 # Work done in the workers (or inline): pure functions of the task.  A task
@@ -120,20 +127,54 @@ def _measure_peak(patch):
     return _peak_of(_audible(partial_table(patch)), patch.render.duration, patch.render.sample_rate)
 
 
-def _render_sample(modes, settings, gain, seed):
-    """Render, scale, dither and encode one sample; measure it.  Returns a dict with ``wav`` bytes."""
+def _render_sample(modes, settings, gain, seed, target=None):
+    """Render, scale, dither and encode one sample; measure it.
+
+    Returns a dict with the measurements and either ``wav`` (the file's
+    bytes) or, when `target` ``(folder, file name)`` is given (a worker on
+    this machine), ``part``: the path of a temporary file the worker wrote
+    beside the final one, which the parent renames into place.
+    """
     import soundfile
 
     duration, sample_rate, bit_depth, absolute = settings
     frequency, t60, amplitude, phase = modes
-    signal = render_modes(frequency, t60, amplitude, duration, sample_rate, phase=phase)
-    scaled = np.multiply(signal, gain, dtype=np.float64)
+    n = round(duration * sample_rate)
+    signal = render_modes(frequency, t60, amplitude, duration, sample_rate, phase=phase, out=_reused("signal", n, np.float32))
+    scaled = _reused("scaled", n, np.float64)
+    np.multiply(signal, gain, out=scaled, dtype=np.float64)
     if absolute:
         normalise(scaled, peak_db=None, bit_depth=bit_depth)  # raises RenderError if it would clip
-    buffer = io.BytesIO()
-    soundfile.write(buffer, quantise(scaled, bit_depth, seed=seed), int(sample_rate), subtype=SUBTYPES[bit_depth], format="WAV")
+    data = quantise(scaled, bit_depth, seed=seed)
     loudness, note = loudness_lufs(scaled, sample_rate)
-    return {"wav": buffer.getvalue(), "peak_dbfs": peak_dbfs(scaled), "loudness_lufs": loudness, "loudness_note": note}
+    result = {"peak_dbfs": peak_dbfs(scaled), "loudness_lufs": loudness, "loudness_note": note}
+    if target is None:
+        buffer = io.BytesIO()
+        soundfile.write(buffer, data, int(sample_rate), subtype=SUBTYPES[bit_depth], format="WAV")
+        result["wav"] = buffer.getvalue()
+        return result
+    folder, name = target
+    handle, part = tempfile.mkstemp(prefix=f".{Path(name).stem}.", suffix=".part.wav", dir=folder)
+    os.close(handle)
+    try:
+        soundfile.write(part, data, int(sample_rate), subtype=SUBTYPES[bit_depth], format="WAV")
+        result["part"], result["bytes"] = part, os.path.getsize(part)
+    except BaseException:
+        Path(part).unlink(missing_ok=True)
+        raise
+    return result
+
+
+_REUSED = threading.local()  # per-thread buffers of the worker loop, by name (fresh pages cost ~1 ms a job)
+
+
+def _reused(name, size, dtype):
+    """An array of `size` values reusing this thread's buffer `name` (contents undefined)."""
+    buf = getattr(_REUSED, name, None)
+    if buf is None or buf.size < size or buf.dtype != dtype:
+        buf = np.empty(size, dtype)
+        setattr(_REUSED, name, buf)
+    return buf[:size]
 
 
 def _one(kind, settings, item):
@@ -141,7 +182,7 @@ def _one(kind, settings, item):
     try:
         if kind == "peak":
             return "ok", _peak_of(item[1], settings[0], settings[1])
-        return "ok", _render_sample(item[1], settings, item[2], item[3])
+        return "ok", _render_sample(item[1], settings, item[2], item[3], item[4])
     except (ModalError, ValueError) as error:
         return "error", str(error)
     except Exception as error:  # noqa: BLE001 - one broken job must not stop the library
@@ -253,6 +294,18 @@ def _batches(items, size):
         yield batch
 
 
+def _rename_into_place(part, path):
+    """Rename a worker's finished temporary file to `path`, with the usual file mode."""
+    try:
+        umask = os.umask(0)
+        os.umask(umask)
+        os.chmod(part, 0o666 & ~umask)  # mkstemp makes 0600
+        os.replace(part, path)
+    except OSError:
+        part.unlink(missing_ok=True)
+        raise
+
+
 class _Run:
     """The state of one library run: jobs, gain, manifest entries and failures.
 
@@ -262,7 +315,7 @@ class _Run:
     worker, and is not kept after.
     """
 
-    def __init__(self, spec, jobs, force, workers=1):
+    def __init__(self, spec, jobs, force, workers=1, local=True):
         self.spec, self.jobs, self.force = spec, jobs, force
         self.folder = spec.output
         self.cache = SolveCache()
@@ -276,6 +329,7 @@ class _Run:
         render = spec.patch.render
         self.settings = (render.duration, render.sample_rate, render.bit_depth, render.peak_db is None)
         self.batch_size = max(1, min(MAX_BATCH_JOBS, len(jobs) // (4 * max(1, workers)) or 1))
+        self.local = local  # workers share this file system: they write the files' bytes themselves
         self.pending = {}  # job index -> (fundamental_hz, partials) of jobs handed to a worker
         self.task_jobs = []  # job indices of each task handed out, in order
 
@@ -381,7 +435,8 @@ class _Run:
                 if table is None:
                     continue
                 self.pending[job.index] = (float(table.fundamental_hz), partials_dict(table))
-                yield job.index, _audible(table), self.gain, dither_seed(job)
+                target = (str(self.folder), job.file) if self.local else None
+                yield job.index, _audible(table), self.gain, dither_seed(job), target
 
         for batch in _batches(items(), self.batch_size):
             self.task_jobs.append([item[0] for item in batch])
@@ -402,11 +457,15 @@ class _Run:
                     yield index, "error", outcome[1]
 
     def store(self, job, value):
-        """Write one rendered file (atomically) and record its entry."""
+        """Put one rendered file in place (atomically) and record its entry."""
         fundamental, partials = self.pending.pop(job.index)
-        wav = value["wav"]
-        with atomic_output(self.folder / job.file) as tmp:
-            tmp.write_bytes(wav)
+        if "part" in value:  # written by a local worker beside its final name: renamed in
+            size = value["bytes"]
+            _rename_into_place(Path(value["part"]), self.folder / job.file)
+        else:
+            size = len(value["wav"])
+            with atomic_output(self.folder / job.file) as tmp:
+                tmp.write_bytes(value["wav"])
         self.entries[job.index] = {
             "file": job.file,
             "note": job.note,
@@ -421,7 +480,7 @@ class _Run:
             "loudness_note": value["loudness_note"],
             "param_hash": self.hashes[job.index],
             "dither_seed": dither_seed(job),
-            "bytes": len(wav),
+            "bytes": size,
             "up_to_date": True,
             "partials": partials,
         }
@@ -431,6 +490,7 @@ class _Run:
     def fail(self, job, message):
         self.pending.pop(job.index, None)
         self.failed[job.index] = message
+
 
     # -- manifest and map ----------------------------------------------------
 
@@ -477,8 +537,8 @@ def build_library(spec_path, *, output=None, workers=None, scheduler=None, force
     started = time.perf_counter()
     spec = load_library_spec(spec_path, output=output)
     jobs = library_jobs(spec)
-    executor = backend(_execute, workers, scheduler, len(jobs))
-    run = _Run(spec, jobs, force, workers=getattr(executor, "workers", 1))
+    executor = backend(_execute, workers, scheduler, len(jobs), preload=WORKER_PRELOAD)
+    run = _Run(spec, jobs, force, workers=getattr(executor, "workers", 1), local=scheduler is None)
     rendered = 0
     reused = run.recorded_gain()
     if reused:
@@ -486,8 +546,12 @@ def build_library(spec_path, *, output=None, workers=None, scheduler=None, force
         if not run.to_render() and not run.force:  # an idle re-run: no worker is started
             executor = backend(_execute, 1, None, 1) if scheduler is None else executor
     with executor, _StopFlag() as stop:
+        executor.warm_up()
         measure_started = time.perf_counter()
-        if not reused and not run.measure_gain(executor, stop, progress):
+        # On this machine the peaks are measured here, where the tables are
+        # made, while the workers start; a cluster measures them itself.
+        gain_executor = executor if scheduler is not None else _Inline(_execute)
+        if not reused and not run.measure_gain(gain_executor, stop, progress):
             return _result(run, executor, started, 0.0, 0, "measuring", True)
         measure_s = time.perf_counter() - measure_started
         try:
@@ -502,8 +566,12 @@ def build_library(spec_path, *, output=None, workers=None, scheduler=None, force
             todo = run.to_render()
             by_index = {job.index: job for job in todo}
             last_write = time.monotonic()
+            tasks = run.render_tasks(todo)
+            # While the workers start (their imports take a second), get the
+            # first tasks ready here; at most PREFETCH_JOBS of them are held.
+            ready = list(itertools.islice(tasks, max(1, PREFETCH_JOBS // run.batch_size)))
             with _progress(len(todo), "rendering", progress) as bar:
-                for index, status, value in run.results(executor, run.render_tasks(todo), stop):
+                for index, status, value in run.results(executor, itertools.chain(ready, tasks), stop):
                     job = by_index[index]
                     if status == "ok":
                         run.store(job, value)

@@ -352,6 +352,7 @@ def render_modes(
     floor: float = DEFAULT_FLOOR,
     block_size: int | None = None,
     chunk_blocks: int = CHUNK_BLOCKS,
+    out: np.ndarray | None = None,
 ) -> np.ndarray:
     """Render a sum of exponentially decaying sinusoids.
 
@@ -386,6 +387,11 @@ def render_modes(
         Blocks per GEMM call, >= 1 (default ``CHUNK_BLOCKS`` = 256).  Work
         skipping is decided per chunk; memory grows with it; the GEMM needs
         it >= ~256 for full speed.
+    out : numpy.ndarray, optional, keyword-only
+        A float32 C-contiguous array of ``round(duration * sample_rate)``
+        samples to render into (and return), for callers that render many
+        signals of one length: reusing it saves the fresh pages of a new
+        array.
 
     Returns
     -------
@@ -443,7 +449,12 @@ def render_modes(
     if chunk_blocks < 1:
         raise ValueError("chunk_blocks must be >= 1")
 
-    out = np.zeros(n, np.float32)
+    if out is None:
+        out = np.zeros(n, np.float32)
+    else:
+        if not (isinstance(out, np.ndarray) and out.dtype == np.float32 and out.shape == (n,) and out.flags.c_contiguous):
+            raise ValueError(f"out must be a C-contiguous float32 array of shape ({n},)")
+        out[:] = 0.0
     if n == 0 or f.size == 0:
         return out
     sigma, omega = _exponents(f, t60, fs)

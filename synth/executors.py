@@ -32,6 +32,11 @@ def _ignore_sigint():
     signal.signal(signal.SIGINT, signal.SIG_IGN)
 
 
+def _nothing():
+    """The empty task of :meth:`Pool.warm_up`."""
+    return None
+
+
 class Inline:
     """Runs tasks one by one in this process (``workers=1``)."""
 
@@ -40,6 +45,9 @@ class Inline:
 
     def __init__(self, work):
         self.work = work
+
+    def warm_up(self):
+        """Nothing to start."""
 
     def __enter__(self):
         return self
@@ -115,20 +123,33 @@ class _Futures(ABC):
 
 
 class Pool(_Futures):
-    """A local process pool of `workers` processes running `work` (a module-level function)."""
+    """A local process pool of `workers` processes running `work` (a module-level function).
 
-    def __init__(self, work, workers):
+    `preload` names modules the workers need, imported once in the fork
+    server before any worker is forked from it (a worker then starts with
+    them loaded: scipy.signal alone takes most of a second to import).
+    :meth:`warm_up` starts every worker at once, so they boot while the
+    caller still has work of its own to do.
+    """
+
+    def __init__(self, work, workers, preload=()):
         self.work = work
         self.workers = workers
+        self.preload = tuple(preload)
         self.description = f"{workers} local processes"
 
     def __enter__(self):
         methods = multiprocessing.get_all_start_methods()
         context = multiprocessing.get_context("forkserver" if "forkserver" in methods else "spawn")
         if context.get_start_method() == "forkserver":
-            context.set_forkserver_preload([self.work.__module__])
+            context.set_forkserver_preload([self.work.__module__, *self.preload])
         self.executor = ProcessPoolExecutor(max_workers=self.workers, mp_context=context, initializer=_ignore_sigint)
         return self
+
+    def warm_up(self):
+        """Start every worker now (each runs the initializer and an empty task); returns at once."""
+        for _ in range(self.workers):
+            self.executor.submit(_nothing)
 
     def __exit__(self, *exc):
         self.executor.shutdown(wait=exc[0] is None, cancel_futures=True)
@@ -194,6 +215,9 @@ class Dask(_Futures):
         self.client.close()
         return False
 
+    def warm_up(self):
+        """The cluster's workers are running already."""
+
     def _submit(self, task):
         return self.client.submit(self.work, task, pure=False)
 
@@ -210,8 +234,11 @@ def default_workers():
         return os.cpu_count() or 1
 
 
-def backend(work, workers, scheduler, n_tasks):
-    """Where `n_tasks` calls of `work` run: Dask if `scheduler`, else a pool or this process."""
+def backend(work, workers, scheduler, n_tasks, preload=()):
+    """Where `n_tasks` calls of `work` run: Dask if `scheduler`, else a pool or this process.
+
+    `preload`: modules a local pool's workers import before their first task.
+    """
     if scheduler is not None:
         if workers is not None:
             raise option_error("give --workers for a local run or --scheduler for a Dask cluster, not both", "--workers")
@@ -220,4 +247,4 @@ def backend(work, workers, scheduler, n_tasks):
         raise option_error(f"must be a whole number >= 1, got {workers!r}", "--workers")
     workers = default_workers() if workers is None else workers
     workers = max(1, min(workers, n_tasks))
-    return Inline(work) if workers == 1 else Pool(work, workers)
+    return Inline(work) if workers == 1 else Pool(work, workers, preload)

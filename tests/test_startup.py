@@ -46,3 +46,12 @@ def test_modes_of_a_string_loads_only_what_it_needs():
     assert status == 0
     assert {"numpy", "yaml"} <= modules
     assert not modules & set(HEAVY), modules & set(HEAVY)
+
+
+def test_a_batch_worker_needs_no_scipy_signal():
+    """Loudness runs in every fresh worker of a batch run; scipy.signal alone imports in about a second."""
+    proc = subprocess.run(
+        [sys.executable, "-c", "import sys, numpy as np; from synth.loudness import integrated_loudness; "
+         "integrated_loudness(np.sin(np.arange(48000) * 0.1), 48000); print('scipy.signal' in sys.modules)"],
+        capture_output=True, text=True, cwd=REPO, timeout=60, env={"PYTHONPATH": str(REPO), "PATH": "/usr/bin:/bin"})
+    assert proc.stdout.strip() == "False", proc.stderr

@@ -186,8 +186,9 @@ def bar_matrices(node_x, size_at, *, section, width, density, youngs_modulus, sh
 
     Returns
     -------
-    stiffness, mass : ndarray [shape=(2N+2, 2N+2)]
-        Degrees of freedom ordered (w0, theta0, w1, theta1, ...).
+    stiffness, mass : scipy.sparse.csr_matrix [shape=(2N+2, 2N+2)]
+        Banded (half-bandwidth 3); degrees of freedom ordered (w0, theta0,
+        w1, theta1, ...).
     phi : ndarray [shape=(N,)]
         Shear parameter of each element (0 for Euler-Bernoulli).
     """
@@ -210,15 +211,15 @@ def bar_matrices(node_x, size_at, *, section, width, density, youngs_modulus, sh
         strain = d_w - n_t
         k_e += np.einsum("eq,eqi,eqj->eij", weights * shear, strain, strain)
         m_e += np.einsum("eq,eqi,eqj->eij", weights * density * inertia, n_t, n_t)
+    import scipy.sparse
+
     size = 2 * (n_elem + 1)
-    stiffness = np.zeros((size, size))
-    mass = np.zeros((size, size))
     dofs = 2 * np.arange(n_elem)[:, None] + np.arange(4)[None, :]
-    for i in range(4):
-        for j in range(4):
-            # Within one (i, j) pair every element touches a different entry.
-            stiffness[dofs[:, i], dofs[:, j]] += k_e[:, i, j]
-            mass[dofs[:, i], dofs[:, j]] += m_e[:, i, j]
+    rows = np.broadcast_to(dofs[:, :, None], (n_elem, 4, 4)).ravel()
+    cols = np.broadcast_to(dofs[:, None, :], (n_elem, 4, 4)).ravel()
+    # COO sums the entries elements share (in element order, as the dense sum did).
+    stiffness = scipy.sparse.coo_matrix((k_e.ravel(), (rows, cols)), shape=(size, size)).tocsr()
+    mass = scipy.sparse.coo_matrix((m_e.ravel(), (rows, cols)), shape=(size, size)).tocsr()
     return stiffness, mass, phi
 
 
@@ -233,7 +234,7 @@ def _fixed_dofs(supports, n_nodes):
     return fixed
 
 
-def solve_bar(node_x, size_at, *, supports, n_modes, **properties):
+def solve_bar(node_x, size_at, *, supports, n_modes, sparse=False, **properties):
     """Lowest bending modes of a bar by finite elements.
 
     Parameters
@@ -244,6 +245,12 @@ def solve_bar(node_x, size_at, *, supports, n_modes, **properties):
     supports : {"free-free", "clamped-free", "pinned-pinned", "clamped-clamped"}
     n_modes : int >= 1
         Bending modes wanted (free-free rigid-body modes are dropped).
+    sparse : bool
+        Solve by shift-invert Lanczos on the banded matrices
+        (:func:`scipy.sparse.linalg.eigsh`) with Rayleigh-quotient
+        frequencies, about twice as fast on large meshes; agrees with the
+        dense solve to ~1e-9 (used where a report needs the value, not the
+        audio: the thin-bar reference of a shaped bar's shear shift).
     **properties
         The keyword arguments of :func:`bar_matrices`.
 
@@ -269,31 +276,49 @@ def solve_bar(node_x, size_at, *, supports, n_modes, **properties):
     stiffness, mass, phi = bar_matrices(node_x, size_at, **properties)
     size = stiffness.shape[0]
     keep = np.setdiff1d(np.arange(size), _fixed_dofs(supports, len(node_x)))
-    k, m = stiffness[np.ix_(keep, keep)], mass[np.ix_(keep, keep)]
-    shift = _eigenvalue_scale(k, m, node_x[-1] - node_x[0])
+    k, m = stiffness[keep][:, keep], mass[keep][:, keep]
+    shift = _eigenvalue_scale(k.diagonal(), m.diagonal(), node_x[-1] - node_x[0])
     n_rigid = 2 if supports == "free-free" else 0
     n_total = min(n_modes + n_rigid, len(keep))
-    with _THREADS.limit(limits=1, user_api="blas"):
-        mu, vectors = scipy.linalg.eigh(m, k + shift * m, subset_by_index=[len(keep) - n_total, len(keep) - 1])
-    mu, vectors = mu[::-1][n_rigid:], vectors[:, ::-1][:, n_rigid:]
-    vectors = vectors / np.sqrt(np.einsum("im,ij,jm->m", vectors, m, vectors))
+    if sparse and n_total < len(keep) - 1:
+        frequency, vectors = _solve_sparse(k.tocsc(), m.tocsc(), shift, n_total)
+        frequency, vectors = frequency[n_rigid:], vectors[:, n_rigid:]
+    else:
+        k_dense, m_dense = k.toarray(), m.toarray()
+        with _THREADS.limit(limits=1, user_api="blas"):
+            mu, vectors = scipy.linalg.eigh(m_dense, k_dense + shift * m_dense,
+                                            subset_by_index=[len(keep) - n_total, len(keep) - 1])
+        mu, vectors = mu[::-1][n_rigid:], vectors[:, ::-1][:, n_rigid:]
+        frequency = np.sqrt(np.maximum(1.0 / mu - shift, 0.0)) / (2.0 * math.pi)
+    vectors = vectors / np.sqrt(np.sum(vectors * (m @ vectors), axis=0))
     dofs = np.zeros((size, n_total - n_rigid))
     dofs[keep] = vectors
-    frequency = np.sqrt(np.maximum(1.0 / mu - shift, 0.0)) / (2.0 * math.pi)
     return frequency, dofs, phi
 
 
-def _eigenvalue_scale(k, m, length):
+def _solve_sparse(k, m, shift, n_total):
+    """Lowest `n_total` (frequency Hz, vectors) by shift-invert Lanczos about ``-shift``, Rayleigh quotients."""
+    import scipy.sparse.linalg
+
+    start = np.random.default_rng(0).uniform(0.5, 1.5, k.shape[0])  # fixed: the same answer every run
+    with _THREADS.limit(limits=1, user_api="blas"):
+        _, vectors = scipy.sparse.linalg.eigsh(k, k=n_total, M=m, sigma=-shift, which="LM", v0=start)
+    quotient = np.sum(vectors * (k @ vectors), axis=0) / np.sum(vectors * (m @ vectors), axis=0)
+    order = np.argsort(quotient)
+    return np.sqrt(np.maximum(quotient[order], 0.0)) / (2.0 * math.pi), vectors[:, order]
+
+
+def _eigenvalue_scale(k_diagonal, m_diagonal, length):
     """A shift (rad^2/s^2) of the order of the lowest eigenvalue: (pi/L)^4 EI / rho A.
 
     From the translational diagonals: ``K_ww ~ 24 EI / l**3`` and
     ``M_ww ~ 26 rho A l / 35`` per node; any value within a few decades of
     the lowest eigenvalue serves.
     """
-    n_nodes = k.shape[0] / 2.0
+    n_nodes = k_diagonal.size / 2.0
     element = length / max(n_nodes - 1.0, 1.0)
-    ei = np.mean(np.diag(k)[::2]) * element**3 / 24.0
-    rho_a = np.mean(np.diag(m)[::2]) / element * 35.0 / 26.0
+    ei = np.mean(k_diagonal[::2]) * element**3 / 24.0
+    rho_a = np.mean(m_diagonal[::2]) / element * 35.0 / 26.0
     return float(ei / rho_a * (math.pi / length) ** 4)
 
 
@@ -329,7 +354,7 @@ def spec_size_function(spec, length):
 
 
 @functools.lru_cache(maxsize=32)
-def spec_modes(spec, length, n_modes, timoshenko, kappa):
+def spec_modes(spec, length, n_modes, timoshenko, kappa, sparse=False):
     """Modes of a bar spec made `length` long: (frequency_hz, dofs, phi, node_x), read-only.
 
     The mesh has :func:`element_count` elements (ends on the profile points);
@@ -341,6 +366,7 @@ def spec_modes(spec, length, n_modes, timoshenko, kappa):
     properties = dict(
         supports=spec.supports,
         n_modes=n_modes,
+        sparse=sparse,
         section=spec.section,
         width=spec.width,
         density=spec.density,
