@@ -28,6 +28,7 @@ test: $(STAMP)
 
 bench: $(STAMP)
 	$(BIN)/python benchmarks/engine.py
+	$(BIN)/python benchmarks/e2e.py
 
 clean:
 	rm -rf renders/*.wav .pytest_cache
