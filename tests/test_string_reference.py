@@ -189,3 +189,26 @@ class TestPitchStandard:
         assert midi_to_hz(21) == pytest.approx(27.5, abs=1e-12)
         assert midi_to_hz(108) == pytest.approx(4186.0090, abs=1e-4)
         assert note_to_midi("C4") == 60 and note_to_midi("Bb1") == 34 and note_to_midi("C#3") == 49
+
+
+def test_many_modes_cost_no_quadratic_lists():
+    """20,000 modes of an ideal string: node positions are built on demand (j / n), the JSON gives
+    node_spacing = 1/n per mode and no per-mode lists, so report size is linear in the mode count."""
+    from synth import patch_from_text, partial_table, table_to_dict, table_to_text
+
+    patch = patch_from_text(
+        "name: many\n"
+        "resonator: {type: string, material: {density: 1140, youngs_modulus: 0}, length: 1.2 m, "
+        "diameter: 0.5 mm, pitch: 15 Hz}\n"
+        "render: {sample_rate: 768000, max_modes: 20000}\n"
+    )
+    table = partial_table(patch)
+    assert len(table.frequency_hz) == 20000
+    modes = table_to_dict(table)["modes"]
+    assert "node_positions" not in modes[0]
+    assert modes[19999]["node_spacing"] == pytest.approx(1.0 / 20000)
+    assert not any(isinstance(v, list) for v in modes[19999].values())
+    nodes = table.columns["node_positions"][19999]  # built on demand
+    assert len(nodes) == 20001 and nodes[1] == pytest.approx(1.0 / 20000) and nodes[-1] == 1.0
+    last_row = next(line for line in table_to_text(table).splitlines() if "  n=20000  " in line)
+    assert last_row.endswith("0 5e-05 0.0001 0.00015 0.0002 ... (20001)")
