@@ -24,7 +24,6 @@ Agreement asked for: 0.01 cent, i.e. a relative 2**(0.01/1200) - 1 = 5.78e-6.
 from __future__ import annotations
 
 import math
-import time
 
 import numpy as np
 import pytest
@@ -407,21 +406,3 @@ def test_bad_input():
         uniform_frequencies("free-free", 0, **kw)
     with pytest.raises(ValueError):
         uniform_frequencies("free-free", 3, **dict(kw, length=-1.0))
-
-
-# --------------------------------------------------------------------------
-# 5. Timing (printed with -s, never asserted).
-
-
-def test_print_timing():
-    bar = BARS["rosewood"]
-    for supports in SUPPORTS:
-        line = []
-        for n in (1, 64, 200):
-            exact(bar, supports, n_modes=n, max_hz=math.inf)
-            reps = 200 if n == 1 else 30
-            start = time.perf_counter()
-            for _ in range(reps):
-                exact(bar, supports, n_modes=n, max_hz=math.inf)
-            line.append(f"n={n}: {(time.perf_counter() - start) / reps * 1e3:.3f} ms")
-        print(f"\n{supports}: " + ", ".join(line))
