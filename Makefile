@@ -21,7 +21,6 @@ demo: $(STAMP)
 	done
 	@$(BIN)/synth midi patches/midi/demo-song.mid --map patches/midi/demo-map.yaml -o renders/demo-song.wav --quiet
 	@$(BIN)/synth batch patches/library/demo-library.yaml
-	@echo "listening caution: start playback quietly and raise it slowly; long exposure to loud sound harms hearing"
 
 test: $(STAMP)
 	$(BIN)/python -m pytest -q

@@ -33,6 +33,7 @@ _PUBLIC = {
     "retune": "patch",
     "mode_set": "pipeline",
     "partial_table": "pipeline",
+    "patch_ending": "pipeline",
     "render_patch": "pipeline",
     "SolveCache": "solvecache",
 }

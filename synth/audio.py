@@ -24,6 +24,8 @@ __all__ = [
     "normalise",
     "quantise",
     "write_audio",
+    "encode_wav",
+    "sampler_fields",
     "atomic_output",
     "check_output_file",
     "check_output_path",
@@ -34,8 +36,9 @@ __all__ = [
     "COMMAND_LINE",
 ]
 
-#: soundfile subtype per bit depth.
+#: soundfile subtype per bit depth, and the bytes each sample takes in a file.
 SUBTYPES = {16: "PCM_16", 24: "PCM_24", 32: "FLOAT"}
+BYTES_PER_SAMPLE = {16: 2, 24: 3, 32: 4}
 #: file suffix -> soundfile format, with the bit depths it can hold.
 FORMATS = {".wav": ("WAV", (16, 24, 32)), ".flac": ("FLAC", (16, 24))}
 DITHER_SEED = 0  # fixed, so a render writes the same bytes every time
@@ -54,7 +57,7 @@ def _full_scale_limit(bit_depth):
     return 1.0  # 24-bit rounds to the nearest step; 32-bit float has no ceiling at 1
 
 
-def normalise(signal, *, peak_db, bit_depth=24):
+def normalise(signal, *, peak_db, bit_depth=24, peak="sample", sample_rate=None):
     """Scale `signal` to `peak_db` dBFS, or check it fits at absolute scale.
 
     Parameters
@@ -63,6 +66,10 @@ def normalise(signal, *, peak_db, bit_depth=24):
     peak_db : float <= 0 or None
         Target peak in dBFS; None keeps the absolute scale.
     bit_depth : {16, 24, 32}
+    peak : {"sample", "true"}
+        Normalise the largest sample, or the true (4x oversampled, ITU-R
+        BS.1770-4 Annex 2) peak, which needs `sample_rate`.
+    sample_rate : float or None, Hz
 
     Returns
     -------
@@ -75,6 +82,7 @@ def normalise(signal, *, peak_db, bit_depth=24):
     RenderError
         If `peak_db` is None and the signal would clip.
     """
+    measure = peak
     signal = np.asarray(signal)
     if not np.all(np.isfinite(signal)):
         raise RenderError("the rendered signal is not finite (NaN or inf); please report this patch")
@@ -90,6 +98,10 @@ def normalise(signal, *, peak_db, bit_depth=24):
         return signal.astype(np.float32), 0.0
     if peak == 0.0:
         return signal.astype(np.float32), 0.0
+    if measure == "true":
+        from .truepeak import true_peak
+
+        peak = true_peak(signal, sample_rate)
     gain = 10.0 ** (peak_db / 20.0) / peak
     return (signal * gain).astype(np.float32), 20.0 * math.log10(gain)
 
@@ -268,8 +280,50 @@ class atomic_output:
         return False
 
 
-def write_audio(path, signal, *, sample_rate, bit_depth, seed=DITHER_SEED, key=None):
-    """Write `signal` (already normalised, |x| <= 1) atomically as WAV or FLAC.
+def sampler_fields(pitch_midi, *, low_note=0, high_note=127, low_velocity=1, high_velocity=127):
+    """The ``smpl`` / ``inst`` chunk fields of a sample sounding at fractional MIDI pitch `pitch_midi`.
+
+    ``smpl`` gives that pitch (the unity note below it and the upward
+    fraction of a semitone); ``inst`` names the nearest note and the fine
+    tune that would bring the sample onto it (the RIFF "shift needed to hit"
+    the unshifted note), with the key and velocity range it is mapped to.
+    See :func:`synth.wavmeta.add_sampler_chunks`.
+    """
+    unity = math.floor(pitch_midi)
+    nearest = int(round(pitch_midi))
+    return {
+        "unity_note": int(np.clip(unity, 0, 127)),
+        "pitch_fraction_cents": min((pitch_midi - unity) * 100.0, 99.999),
+        "unshifted_note": int(np.clip(nearest, 0, 127)),
+        "fine_tune_cents": float(np.clip(round((nearest - pitch_midi) * 100.0), -50, 50)),
+        "low_note": int(low_note), "high_note": int(high_note),
+        "low_velocity": int(low_velocity), "high_velocity": int(high_velocity),
+    }
+
+
+def encode_wav(data, *, sample_rate, bit_depth, sampler=None):
+    """The bytes of a WAV file of quantised `data` (:func:`quantise`), with sampler chunks.
+
+    libsndfile's ``PEAK`` chunk (32-bit float files) is removed: it carries a
+    wall-clock time, so two renders of one signal would differ.  With
+    `sampler` (:func:`sampler_fields`) a ``smpl`` and an ``inst`` chunk are added.
+    """
+    import io
+
+    import soundfile
+
+    from .wavmeta import add_sampler_chunks, strip_chunks
+
+    buffer = io.BytesIO()
+    soundfile.write(buffer, data, int(sample_rate), subtype=SUBTYPES[bit_depth], format="WAV")
+    wav = strip_chunks(buffer.getvalue())
+    if sampler is not None:
+        wav = add_sampler_chunks(wav, sample_rate=int(sample_rate), **sampler)
+    return wav
+
+
+def write_audio(path, signal, *, sample_rate, bit_depth, seed=DITHER_SEED, key=None, sampler=None):
+    """Write `signal` (already normalised, |x| <= 1) atomically as WAV (or RF64) or FLAC.
 
     Parameters
     ----------
@@ -284,6 +338,12 @@ def write_audio(path, signal, *, sample_rate, bit_depth, seed=DITHER_SEED, key=N
     key : str or None
         The option that named `path`, for the error if it cannot be written
         (see :class:`atomic_output`).
+    sampler : dict or None
+        ``smpl`` / ``inst`` fields (:func:`sampler_fields`) for a WAV file.
+
+    Returns
+    -------
+    Path
 
     Raises
     ------
@@ -291,12 +351,27 @@ def write_audio(path, signal, *, sample_rate, bit_depth, seed=DITHER_SEED, key=N
         If `sample_rate` is not a whole number of Hz.
     PatchError, RenderError
         If `path` is refused or cannot be written; nothing is left behind.
+
+    Notes
+    -----
+    A WAV file's sizes are 32-bit: a signal that would pass 4 GiB is written
+    as RF64 (the EBU's 64-bit WAV, which libsndfile writes) and never
+    truncated; such a file carries no sampler chunks.
     """
     import soundfile
+
+    from .wavmeta import needs_rf64
 
     fmt = check_output_path(path, bit_depth)
     rate = whole_sample_rate(sample_rate)
     data = quantise(signal, bit_depth, seed=seed)
+    frames = data.shape[0]
+    channels = 1 if data.ndim == 1 else data.shape[1]
     with atomic_output(path, key=key) as tmp:
-        soundfile.write(str(tmp), data, rate, subtype=SUBTYPES[bit_depth], format=fmt)
+        if fmt == "WAV" and needs_rf64(frames, channels, BYTES_PER_SAMPLE[bit_depth]):
+            soundfile.write(str(tmp), data, rate, subtype=SUBTYPES[bit_depth], format="RF64")
+        elif fmt == "WAV":
+            tmp.write_bytes(encode_wav(data, sample_rate=rate, bit_depth=bit_depth, sampler=sampler))
+        else:
+            soundfile.write(str(tmp), data, rate, subtype=SUBTYPES[bit_depth], format=fmt)
     return Path(path)

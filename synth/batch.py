@@ -36,7 +36,6 @@ How a run goes
 """
 from __future__ import annotations
 
-import io
 import itertools
 import math
 import os
@@ -50,17 +49,18 @@ from pathlib import Path
 
 import numpy as np
 
-from .audio import SUBTYPES, atomic_output, normalise, peak_dbfs, quantise
+from .audio import atomic_output, encode_wav, normalise, peak_dbfs, quantise, sampler_fields
 from .damping import LN1000
 from .engine import render_modes
 from .errors import ModalError, PatchError, RenderError
 from .executors import Inline as _Inline
 from .executors import backend, default_workers
-from .libindex import MANIFEST_NAME, index_texts, read_manifest
+from .libindex import MANIFEST_NAME, index_texts, key_ranges, read_manifest, velocity_ranges
 from .library import (
     dither_seed,
     file_hash,
     input_hash,
+    is_sample_file_name,
     job_table,
     library_hash,
     library_jobs,
@@ -70,6 +70,7 @@ from .library import (
     patch_fingerprint,
 )
 from .solvecache import SolveCache
+from .tone import CUT_DB, Tone, plan_ending, render_tone
 from .pipeline import partial_table
 
 __all__ = ["LibraryResult", "build_library", "summary_lines", "default_workers", "PEAK_PREFIX_S"]
@@ -99,69 +100,119 @@ def _one_blas_thread():
     return _CONTROLLER.limit(limits=1)
 
 
+@dataclass(frozen=True)
+class RenderRequest:
+    """How every sample of a library is rendered (the patch's render settings and damper).
+
+    duration : float or "auto", s; sample_rate : int, Hz; bit_depth : int;
+    absolute : bool (``peak_db: null``); peak : {"true", "sample"} (what the
+    gain normalises); release_t60 : float or None, s.
+    """
+
+    duration: object
+    sample_rate: int
+    bit_depth: int
+    absolute: bool
+    peak: str
+    release_t60: object
+
+    @classmethod
+    def of(cls, patch):
+        render = patch.render
+        return cls(render.duration, render.sample_rate, render.bit_depth, render.peak_db is None, render.peak,
+                   patch.damping.release_t60)
+
+
 def _audible(table):
-    """(frequency, t60, amplitude, phase) of the modes of `table` that sound."""
-    keep = table.amplitude > 0
-    return tuple(np.array(values[keep]) for values in (table.frequency_hz, table.t60_s, table.amplitude, table.phase))
+    """The :class:`~synth.tone.Tone` arrays (frequency, t60, amplitude, phase, onset) of a table."""
+    return Tone.from_table(table).arrays()
 
 
-def _peak_of(modes, duration, sample_rate):
-    """The exact peak |sample| of the render of `modes` (see the module notes)."""
-    frequency, t60, amplitude, phase = modes
-    n_total = round(duration * sample_rate)
+def _tone(arrays):
+    frequency, t60, amplitude, phase, onset = arrays
+    return Tone(frequency, amplitude, phase, t60, onset, float(frequency[0]) if len(frequency) else 0.0)
+
+
+def _peak_measure(mode):
+    """The function measuring a signal's peak for ``render.peak`` `mode`."""
+    if mode == "true":
+        from .truepeak import true_peak
+
+        return true_peak
+    return lambda signal, sample_rate: float(np.max(np.abs(signal))) if signal.size else 0.0
+
+
+def _peak_of(tone, request):
+    """The exact peak (sample or true, per `request`) of the file `tone` renders to.
+
+    Renders spans of 0.25 s, 0.5 s, ... of the file (onset, ending and all)
+    until the decay bound ``sum |a| exp(-ln(1000) t / T60)``, which no later
+    sample can exceed, falls below the peak found (see the module notes).
+    """
+    ending = plan_ending(tone, duration=request.duration, sample_rate=request.sample_rate,
+                         release_t60=request.release_t60)
+    measure = _peak_measure(request.peak)
+    rate, total = request.sample_rate, ending.n_samples
+    amplitude, t60 = np.abs(tone.amplitude), tone.t60_s
     span = PEAK_PREFIX_S
     while True:
-        samples = render_modes(frequency, t60, amplitude, min(span, duration), sample_rate, phase=phase)
-        peak = float(np.max(np.abs(samples))) if samples.size else 0.0
-        if len(samples) >= n_total:
+        n = min(int(round(span * rate)), total)
+        damper = None if ending.damper is None or ending.damper >= n else ending.damper
+        samples = render_tone(tone, n, rate, damper=damper, release_t60=request.release_t60,
+                              fade=ending.fade if n == total else 0)
+        peak = measure(samples, rate)
+        if n >= total:
             return peak
-        later = len(samples) / sample_rate  # s, the first sample not rendered
-        bound = float(np.sum(np.abs(amplitude) * np.exp(-LN1000 * later / t60)))
+        bound = float(np.sum(amplitude * np.exp(-LN1000 * (n / rate) / t60)))
         if bound <= peak:
             return peak
         span *= 2.0
 
 
 def _measure_peak(patch):
-    """The exact peak |sample| of `patch`'s unnormalised render."""
-    return _peak_of(_audible(partial_table(patch)), patch.render.duration, patch.render.sample_rate)
+    """The exact peak of `patch`'s unnormalised file (sample or true, per ``render.peak``)."""
+    return _peak_of(Tone.from_table(partial_table(patch)), RenderRequest.of(patch))
 
 
-def _render_sample(modes, settings, gain, seed, target=None):
+def _render_sample(arrays, request, gain, seed, target=None, sampler=None):
     """Render, scale, dither and encode one sample; measure it.
 
     Returns a dict with the measurements and either ``wav`` (the file's
     bytes) or, when `target` ``(folder, file name)`` is given (a worker on
     this machine), ``part``: the path of a temporary file the worker wrote
-    beside the final one, which the parent renames into place.
+    beside the final one, which the parent renames into place.  `sampler`
+    holds the ``smpl`` / ``inst`` chunk fields (:func:`synth.wavmeta.add_sampler_chunks`).
     """
-    import soundfile
+    from .truepeak import true_peak_dbtp
 
-    duration, sample_rate, bit_depth, absolute = settings
-    frequency, t60, amplitude, phase = modes
-    n = round(duration * sample_rate)
-    signal = render_modes(frequency, t60, amplitude, duration, sample_rate, phase=phase, out=_reused("signal", n, np.float32))
+    tone = _tone(arrays)
+    rate, bit_depth = request.sample_rate, request.bit_depth
+    ending = plan_ending(tone, duration=request.duration, sample_rate=rate, release_t60=request.release_t60)
+    n = ending.n_samples
+    signal = render_tone(tone, n, rate, damper=ending.damper, release_t60=request.release_t60, fade=ending.fade,
+                         out=_reused("signal", n, np.float32))
     scaled = _reused("scaled", n, np.float64)
     np.multiply(signal, gain, out=scaled, dtype=np.float64)
-    if absolute:
+    if request.absolute:
         normalise(scaled, peak_db=None, bit_depth=bit_depth)  # raises RenderError if it would clip
     data = quantise(scaled, bit_depth, seed=seed)
-    loudness, note = loudness_lufs(scaled, sample_rate)
-    result = {"peak_dbfs": peak_dbfs(scaled), "loudness_lufs": loudness, "loudness_note": note}
+    loudness, note = loudness_lufs(scaled, rate)
+    result = {"peak_dbfs": peak_dbfs(scaled), "true_peak_dbtp": true_peak_dbtp(scaled, rate),
+              "loudness_lufs": loudness, "loudness_note": note, "duration_s": n / rate,
+              "ending": ending.describe(rate), "cut_db": ending.cut_db}
+    wav = encode_wav(data, sample_rate=rate, bit_depth=bit_depth, sampler=sampler)
     if target is None:
-        buffer = io.BytesIO()
-        soundfile.write(buffer, data, int(sample_rate), subtype=SUBTYPES[bit_depth], format="WAV")
-        result["wav"] = buffer.getvalue()
+        result["wav"] = wav
         return result
     folder, name = target
     handle, part = tempfile.mkstemp(prefix=f".{Path(name).stem}.", suffix=".part.wav", dir=folder)
-    os.close(handle)
     try:
-        soundfile.write(part, data, int(sample_rate), subtype=SUBTYPES[bit_depth], format="WAV")
-        result["part"], result["bytes"] = part, os.path.getsize(part)
+        with os.fdopen(handle, "wb") as stream:
+            stream.write(wav)
     except BaseException:
         Path(part).unlink(missing_ok=True)
         raise
+    result["part"], result["bytes"] = part, len(wav)
     return result
 
 
@@ -177,12 +228,12 @@ def _reused(name, size, dtype):
     return buf[:size]
 
 
-def _one(kind, settings, item):
+def _one(kind, request, item):
     """("ok", value) or ("error", message) of one job of a task -- never raises."""
     try:
         if kind == "peak":
-            return "ok", _peak_of(item[1], settings[0], settings[1])
-        return "ok", _render_sample(item[1], settings, item[2], item[3], item[4])
+            return "ok", _peak_of(_tone(item[1]), request)
+        return "ok", _render_sample(item[1], request, item[2], item[3], item[4], item[5])
     except (ModalError, ValueError) as error:
         return "error", str(error)
     except Exception as error:  # noqa: BLE001 - one broken job must not stop the library
@@ -254,6 +305,8 @@ class LibraryResult:
     measure_s: float
     n_on_disk: int
     warned: tuple = ()
+    stale: tuple = ()
+    pruned: tuple = ()
 
     @property
     def exit_status(self):
@@ -326,11 +379,13 @@ class _Run:
         self.previous = read_manifest(self.folder)
         self.gain, self.basis, self.loudest, self.reused = None, None, None, False
         self.entries, self.fresh, self.warned = {}, set(), []
-        render = spec.patch.render
-        self.settings = (render.duration, render.sample_rate, render.bit_depth, render.peak_db is None)
+        self.settings = RenderRequest.of(spec.patch)
+        self.keys = key_ranges([midi for _, midi in spec.notes])
+        self.layers = velocity_ranges(spec.velocities)
         self.batch_size = max(1, min(MAX_BATCH_JOBS, len(jobs) // (4 * max(1, workers)) or 1))
         self.local = local  # workers share this file system: they write the files' bytes themselves
         self.pending = {}  # job index -> (fundamental_hz, partials) of jobs handed to a worker
+        self.stale, self.pruned = [], []  # files of earlier manifests this spec no longer makes
         self.task_jobs = []  # job indices of each task handed out, in order
 
     def table(self, job):
@@ -436,7 +491,7 @@ class _Run:
                     continue
                 self.pending[job.index] = (float(table.fundamental_hz), partials_dict(table))
                 target = (str(self.folder), job.file) if self.local else None
-                yield job.index, _audible(table), self.gain, dither_seed(job), target
+                yield job.index, _audible(table), self.gain, dither_seed(job), target, self.sampler_fields(job)
 
         for batch in _batches(items(), self.batch_size):
             self.task_jobs.append([item[0] for item in batch])
@@ -455,6 +510,18 @@ class _Run:
             else:
                 for index in self.task_jobs[task_index]:
                     yield index, "error", outcome[1]
+
+    def sampler_fields(self, job):
+        """The ``smpl`` / ``inst`` fields of a job's file (:func:`synth.audio.sampler_fields`).
+
+        The take sounds ``detune_cents`` from its note; its key and velocity
+        ranges are the ones the SFZ gives it.  The SFZ plays the takes as
+        rendered, their variation kept.
+        """
+        low_note, high_note = self.keys[job.midi]
+        low_velocity, high_velocity = self.layers[job.velocity]
+        return sampler_fields(job.midi + job.detune_cents / 100.0, low_note=low_note, high_note=high_note,
+                              low_velocity=low_velocity, high_velocity=high_velocity)
 
     def store(self, job, value):
         """Put one rendered file in place (atomically) and record its entry."""
@@ -476,6 +543,9 @@ class _Run:
             "detune_cents": job.detune_cents,
             "excitation_position": None if job.excitation_position is None else list(job.excitation_position),
             "peak_dbfs": _finite(value["peak_dbfs"]),
+            "true_peak_dbtp": _finite(value["true_peak_dbtp"]),
+            "duration_s": value["duration_s"],
+            "ending": value["ending"],
             "loudness_lufs": value["loudness_lufs"],
             "loudness_note": value["loudness_note"],
             "param_hash": self.hashes[job.index],
@@ -484,19 +554,46 @@ class _Run:
             "up_to_date": True,
             "partials": partials,
         }
-        if partials["warnings"]:
+        if value["cut_db"] is not None and value["cut_db"] > CUT_DB:
+            self.warned.append((job.file, value["ending"]))
+        elif partials["warnings"]:
             self.warned.append((job.file, partials["warnings"][0]))
 
     def fail(self, job, message):
         self.pending.pop(job.index, None)
         self.failed[job.index] = message
 
+    def find_stale(self):
+        """Name the files the previous manifest listed (or kept as stale) that no job produces now.
+
+        Only names of the library's own sample pattern, directly in the
+        folder, are considered: a manifest cannot point a deletion anywhere
+        else.
+        """
+        produced = {job.file for job in self.jobs}
+        previous = self.previous or {}
+        listed = [e.get("file") for e in previous.get("files", []) if isinstance(e, dict)]
+        listed += [name for name in previous.get("library", {}).get("stale", []) or [] if isinstance(name, str)]
+        self.stale = sorted({name for name in listed if isinstance(name, str) and name not in produced
+                             and is_sample_file_name(name) and (self.folder / name).is_file()})
+
+    def prune_stale(self, prune):
+        """Delete the stale files (:meth:`find_stale`) if `prune`."""
+        if prune:
+            for name in self.stale:
+                try:
+                    (self.folder / name).unlink()
+                    self.pruned.append(name)
+                except OSError:
+                    pass
+
 
     # -- manifest and map ----------------------------------------------------
 
     def write_index(self):
         """Write manifest.json and <name>.sfz from the entries (atomically; only if their text changed)."""
-        texts = index_texts(self.spec, self.jobs, self.entries, self.failed, lib_hash=self.hash, gain=self.gain, basis=self.basis)
+        texts = index_texts(self.spec, self.jobs, self.entries, self.failed, lib_hash=self.hash, gain=self.gain,
+                            basis=self.basis, stale=[n for n in self.stale if n not in self.pruned])
         for path, text in zip((self.folder / MANIFEST_NAME, self.folder / f"{self.spec.name}.sfz"), texts):
             try:
                 if path.read_text(encoding="utf-8") == text:
@@ -507,7 +604,7 @@ class _Run:
                 tmp.write_text(text, encoding="utf-8")
 
 
-def build_library(spec_path, *, output=None, workers=None, scheduler=None, force=False, progress=None):
+def build_library(spec_path, *, output=None, workers=None, scheduler=None, force=False, progress=None, prune=False):
     """Render the sample library described by the spec at `spec_path`.
 
     Parameters
@@ -524,6 +621,9 @@ def build_library(spec_path, *, output=None, workers=None, scheduler=None, force
         Render every file again (and measure the gain again).
     progress : bool or None
         Show progress bars (None: when stderr is a terminal).
+    prune : bool
+        Delete the stale files: those the previous manifest listed that this
+        spec no longer produces (never any other file).
 
     Returns
     -------
@@ -562,6 +662,7 @@ def build_library(spec_path, *, output=None, workers=None, scheduler=None, force
             _remove_temporaries(run.folder, spec.name)
             if not reused:
                 run.carry_entries()
+            run.find_stale()
             run.write_index()
             todo = run.to_render()
             by_index = {job.index: job for job in todo}
@@ -588,6 +689,7 @@ def build_library(spec_path, *, output=None, workers=None, scheduler=None, force
         except OSError as error:  # the disk filled up, the folder went away, ...
             _try_index(run)
             raise RenderError(f"cannot write to {str(run.folder)!r}: {error.strerror or error}") from None
+        run.prune_stale(prune and not stop.requested)
         run.write_index()
         return _result(run, executor, started, measure_s, rendered, "rendering", stop.requested)
 
@@ -621,7 +723,15 @@ def _result(run, executor, started, measure_s, rendered, stage, interrupted):
         measure_s=measure_s,
         n_on_disk=len(run.entries),
         warned=tuple(run.warned),
+        stale=tuple(run.stale),
+        pruned=tuple(run.pruned),
     )
+
+
+def _some(names, limit=4):
+    """The first few `names`, and how many more."""
+    shown = ", ".join(names[:limit])
+    return shown + (f" ... and {len(names) - limit} more" if len(names) > limit else "")
 
 
 def summary_lines(result):
@@ -647,6 +757,13 @@ def summary_lines(result):
             f"synth: warning: {len(result.warned)} rendered files carry partial-table warnings "
             f"(see partials.warnings in the manifest), e.g. {file}: {first}"
         )
+    if result.pruned:
+        out.append(f"pruned {len(result.pruned)} stale file{'s' * (len(result.pruned) != 1)} the previous spec made: "
+                   + _some(result.pruned))
+    left = [name for name in result.stale if name not in result.pruned]
+    if left:
+        err.append(f"synth: warning: {len(left)} file{'s' * (len(left) != 1)} in {result.output} from the previous spec "
+                   f"are no longer produced (--prune deletes them): {_some(left)}")
     if result.interrupted:
         err.append(
             f"synth: interrupted: {result.n_on_disk} of {result.n_jobs} files on disk, each whole and in the "

@@ -54,6 +54,11 @@ def _warn(messages):
         print(f"synth: warning: {message}", file=sys.stderr)
 
 
+def _note(messages):
+    for message in messages:
+        print(f"synth: note: {message}", file=sys.stderr)
+
+
 def _check_rows(rows):
     if rows is not None and rows < 1:
         raise option_error(f"must be a whole number >= 1, got {rows}", "--rows")
@@ -83,27 +88,39 @@ def cmd_modes(args):
 
 
 def cmd_render(args):
-    from .audio import check_output_path, make_output_folder, normalise, peak_dbfs, write_audio
+    from .audio import check_output_path, make_output_folder, normalise, peak_dbfs, sampler_fields, write_audio
+    from .library import loudness_lufs
     from .modes import table_to_text
     from .patch import load_patch
-    from .pipeline import render_patch
+    from .pipeline import partial_table, patch_ending, render_patch
+    from .truepeak import true_peak_dbtp
+    from .units import hz_to_midi
 
     _check_rows(args.rows)
     patch = load_patch(args.patch, overrides=_overrides(args))
-    bits = patch.render.bit_depth
+    bits, rate = patch.render.bit_depth, patch.render.sample_rate
     out = Path(args.output) if args.output else DEFAULT_OUTPUT_DIR / f"{patch.name}.wav"
     check_output_path(out, bits, inputs=(args.patch,), make_folder=not args.output)
-    signal, table = render_patch(patch)
-    scaled, _ = normalise(signal, peak_db=patch.render.peak_db, bit_depth=bits)
+    table = partial_table(patch)
+    ending = patch_ending(patch, table)
+    signal, table = render_patch(patch, table=table, ending=ending)
+    scaled, _ = normalise(signal, peak_db=patch.render.peak_db, bit_depth=bits, peak=patch.render.peak,
+                          sample_rate=rate)
     if not args.output:
         make_output_folder(out)
-    write_audio(out, scaled, sample_rate=patch.render.sample_rate, bit_depth=bits, key="--output" if args.output else None)
+    sampler = sampler_fields(float(hz_to_midi(table.fundamental_hz)))
+    write_audio(out, scaled, sample_rate=rate, bit_depth=bits, key="--output" if args.output else None, sampler=sampler)
     if not args.quiet:
         print(table_to_text(table, max_rows=args.rows))
+    loudness, _ = loudness_lufs(scaled, rate)
+    heard = "" if loudness is None else f", {loudness:.1f} LUFS"
     print(
-        f"wrote {out} ({patch.render.duration:g} s, {patch.render.sample_rate:g} Hz, "
-        f"{int(bits)}-bit, peak {peak_dbfs(scaled):.2f} dBFS)"
+        f"wrote {out} ({len(scaled) / rate:.2f} s, {rate:g} Hz, {int(bits)}-bit, peak {peak_dbfs(scaled):.2f} dBFS, "
+        f"true peak {true_peak_dbtp(scaled, rate):.2f} dBTP{heard})"
     )
+    note = ending.describe(rate)
+    if note is not None:
+        (_warn if ending.audible_cut or ending.capped else _note)([note])
     if table.warnings:
         _warn(table.warnings)
     if not args.quiet:
@@ -131,7 +148,8 @@ def cmd_midi(args):
     notes = f"{result.n_notes} note{'s' * (result.n_notes != 1)}"
     print(
         f"wrote {out} ({notes}, {result.duration_s:.2f} s, {result.sample_rate:g} Hz, "
-        f"{int(result.bit_depth)}-bit {layout}, peak {result.peak_dbfs:.2f} dBFS)"
+        f"{int(result.bit_depth)}-bit {layout}, peak {result.peak_dbfs:.2f} dBFS, "
+        f"true peak {result.true_peak_dbtp:.2f} dBTP)"
     )
     _warn(result.warnings)
     if not args.quiet:
@@ -142,7 +160,8 @@ def cmd_midi(args):
 def cmd_batch(args):
     from .batch import build_library, summary_lines
 
-    result = build_library(args.spec, output=args.output, workers=args.workers, scheduler=args.scheduler, force=args.force)
+    result = build_library(args.spec, output=args.output, workers=args.workers, scheduler=args.scheduler, force=args.force,
+                           prune=args.prune)
     out, err = summary_lines(result)
     for line in out:
         print(line)
@@ -255,6 +274,8 @@ def build_parser():
     batch.add_argument("--scheduler", metavar="ADDRESS", help="run the jobs on a Dask cluster, e.g. tcp://host:8786 (pip install '.[cluster]')")
     batch.add_argument("-o", "--output", metavar="DIR", help="output folder (overrides the spec's output)")
     batch.add_argument("--force", action="store_true", help="render every file again, even those up to date")
+    batch.add_argument("--prune", action="store_true",
+                       help="delete the files the previous manifest listed that this spec no longer produces")
     batch.set_defaults(func=cmd_batch)
 
     tune = commands.add_parser("tune-bar", help="shape an undercut so a bar's first three partials land on chosen ratios")

@@ -1,49 +1,94 @@
-"""Modal weights of a pluck, a strike or an impulse at a point.
+"""How an excitation sets each mode moving, in time: pulses, modal weights and the onset.
 
-With mode shapes phi_m scaled to a common modal mass, a point excitation puts
-into mode m (displacement at the pickup, up to one common factor):
+Every excitation is a force applied at a point, with a time course; every
+mode (frequency omega, decay sigma, shapes phi_e at the excitation and phi_p
+at the pickup, a common modal mass) answers a unit force impulse with the
+displacement ``Im[c e^(s t)]``, ``s = -sigma + i omega``, ``c = phi_e phi_p /
+omega``.  The excitations:
 
-* pluck (released from a static deflection, zero velocity):
-  ``phi_m(x0) phi_m(xp) / omega_m**2``, sounding as a cosine;
-* strike (a velocity impulse through a contact of duration tau):
-  ``phi_m(x0) phi_m(xp) / omega_m * H(f_m)``, sounding as a sine, where
-  ``H(f) = |cos(pi f tau)| / |1 - (2 f tau)**2|`` is the spectrum of a
-  half-sine contact force relative to its value at 0 Hz (used through its
-  notch-free envelope, :func:`contact_envelope`);
-* impulse (a flat excitation: every mode driven equally, weighted only by its
-  shape at the two points): ``phi_m(x0) phi_m(xp)``, sounding as a sine from
-  rest -- the brightest option, for auditioning the mode set itself.
+* **impulse**: an ideal force impulse of area J.
+* **strike**: a half-sine force pulse of duration tau (``contact_time``) and
+  area J, ``f(u) = J (pi / 2 tau) sin(pi u / tau)``.
+* **pluck**: the object held at rest under a static force F0 (deflected), the
+  force then released over ``release_time`` T (a raised-cosine fall
+  ``F0 (1 + cos(pi u / T)) / 2``): a finger or plectrum letting go.
 
-For a string (phi_n = sin(n pi x / L), omega_n proportional to n) the pluck
-gives the familiar triangle series ``sin(n pi beta) / n**2`` and the strike
-``sin(n pi beta) / n``.  Amplitudes are scaled so that `strength` is a level
-in full-scale units: for the pluck it is the initial deflection at the pluck
-point (the triangle's height); for the strike and impulse it is the largest
-single mode's contribution at the excitation point, before the contact
-roll-off.  Either way the low modes' level is proportional to `strength` and
-does not depend on the contact time, the sample rate or the mode count.
+A force ``p(u)`` gives each mode ``Im[c e^(s t) P_t(s)]`` with ``P_t(s) =
+int_0^t p(u) e^(-s u) du``; once the pulse is over the mode is a damped
+sinusoid whose complex amplitude is ``c`` times the pulse's Laplace transform
+at the mode's own complex frequency, ``M(s) = P_inf(s)``:
+
+* impulse: ``M = J``;
+* strike: ``M = J (pi/2tau) int_0^tau sin(pi u/tau) e^(-s u) du``, which on the
+  undamped axis is ``|cos(pi f tau)| / |1 - (2 f tau)**2|`` times J (pi/4 at
+  f = 1/(2 tau), 1/3 at 1/tau, zeros at (2k+1)/(2 tau) for k >= 1): the one
+  rule for a strike's spectrum, damping included;
+* pluck: ``M = F0 [G(s) - e^(-s T) / s]``, ``G(s) = int_0^T (r(u) - 1) e^(-s u)
+  du``; an instant release (T = 0) gives ``-F0 / s``, the familiar pluck from a
+  static deflection (cosine phase, amplitude ``F0 phi_e phi_p / omega**2``).
+
+The pickup measures displacement, velocity or acceleration (``s`` once or
+twice more, each divided by the fundamental's angular frequency so the
+fundamental keeps its level and higher modes rise 6 or 12 dB per octave).
+During a pulse the onset is evaluated sample by sample from the same
+integrals (:func:`onset_samples`), so the rendered signal is the modal
+response convolved with the pulse, exactly.  A force that rises from zero
+gives a velocity and an acceleration that start from zero; an ideal impulse
+and a held (deflected) start do not, which is why an impulse is measured as
+displacement and a pluck as velocity or acceleration (:func:`check_measure`).
+
+Amplitudes are scaled so that `strength` keeps its meaning: for a pluck it is
+the static deflection at the pluck point (the triangle's height, with F0 =
+strength / sum phi_e**2 / omega**2); for a strike or an impulse the largest
+single mode's displacement contribution at the excitation point before the
+pulse's roll-off (J = strength / max phi_e**2 / omega).  Either way the low
+modes' level does not depend on the mode count or the sample rate.
 
 References
 ----------
 .. [1] N. H. Fletcher and T. D. Rossing, *The Physics of Musical Instruments*,
    2nd ed., Springer (1998), sec. 2.7-2.8 (plucked and struck strings).
+.. [2] L. Meirovitch, *Fundamentals of Vibrations*, McGraw-Hill (2001), ch. 3
+   and 7 (response of modes to arbitrary forces by the convolution integral;
+   chapters from memory).
 """
 from __future__ import annotations
 
 import math
+from dataclasses import dataclass
 
 import numpy as np
 
-__all__ = ["EXCITATIONS", "excitation_weights", "contact_spectrum", "contact_envelope"]
+__all__ = [
+    "EXCITATIONS",
+    "MEASURES",
+    "DEFAULT_RELEASE_TIME_S",
+    "Pulse",
+    "check_measure",
+    "drive_coefficients",
+    "contact_spectrum",
+    "onset_samples",
+    "ONSET_BLOCK",
+]
 
 EXCITATIONS = ("pluck", "strike", "impulse")
+MEASURES = ("displacement", "velocity", "acceleration")
+#: How long a pluck's release takes (s) unless the patch says: between a nail
+#: or plectrum (about 0.1 ms) and the flesh of a fingertip (about a
+#: millisecond) -- orders of magnitude from the finger-string interaction
+#: literature (Pavlidou 1997; Evangelista & Eckerholm 2010; from memory).
+DEFAULT_RELEASE_TIME_S = 0.2e-3
+#: Onset samples evaluated at a time (rows of an onset x modes array).
+ONSET_BLOCK = 512
+_SMALL = 1e-6  # |z t| below which (1 - e^-zt) / z is summed as a series
 
 
 def contact_spectrum(frequency_hz, contact_time):
-    """|F(f) / F(0)| of a half-sine force pulse of duration `contact_time` (s).
+    """|F(f) / F(0)| of a half-sine force pulse of duration `contact_time` (s), undamped axis.
 
     Equals ``|cos(pi f tau)| / |1 - (2 f tau)**2|``: pi/4 at f = 1/(2 tau),
     1/3 at f = 1/tau, zeros at (2k+1)/(2 tau) for k >= 1, falling as f**-2.
+    :class:`Pulse` evaluates the same transform at complex s (damping included).
 
     >>> float(np.round(contact_spectrum(1000.0, 1e-3), 6))
     0.333333
@@ -54,75 +99,166 @@ def contact_spectrum(frequency_hz, contact_time):
     return np.where(np.isclose(x, 1.0, rtol=0, atol=1e-9), math.pi / 4.0, h)
 
 
-def contact_envelope(frequency_hz, contact_time):
-    """Notch-free envelope of :func:`contact_spectrum` through its lobe peaks.
+def _e(z, t):
+    """``int_0^t e^(-z u) du = (1 - e^(-z t)) / z``, stable as z t -> 0 (complex z, t >= 0)."""
+    zt = z * t
+    small = np.abs(zt) < _SMALL
+    with np.errstate(divide="ignore", invalid="ignore"):
+        exact = -np.expm1(-zt) / z
+    series = t * (1.0 - 0.5 * zt + zt * zt / 6.0)
+    return np.where(small, series, exact)
 
-    Equal to the half-sine spectrum up to f = 1/tau (x = 2 f tau = 2, where it
-    is 1/3), and ``1 / (x**2 - 1)`` above, which touches every side-lobe peak
-    (x = 4, 6, ...).  A real felt contact is never an exact half-sine, so its
-    spectrum has no exact zeros; the envelope also keeps brightness growing
-    smoothly as a harder blow shortens the contact, instead of sweeping zeros
-    through the partials.
 
-    >>> float(np.round(contact_envelope(2000.0, 1e-3), 6))  # x = 4: 1/15
-    0.066667
+def _cos_integral(s, b, t):
+    """``int_0^t cos(b u) e^(-s u) du`` from exponentials (no cancellation near s = +-ib)."""
+    return 0.5 * (_e(s - 1j * b, t) + _e(s + 1j * b, t))
+
+
+def _sin_integral(s, b, t):
+    """``int_0^t sin(b u) e^(-s u) du``."""
+    return (_e(s - 1j * b, t) - _e(s + 1j * b, t)) / 2j
+
+
+@dataclass(frozen=True)
+class Pulse:
+    """The time course of an excitation's force, in units of its area (J) or its held value (F0).
+
+    Attributes
+    ----------
+    kind : {"impulse", "strike", "pluck"}
+    duration : float >= 0, s
+        Contact time of a strike, release time of a pluck, 0 for an impulse.
     """
-    x = 2.0 * np.asarray(frequency_hz, dtype=float) * contact_time
-    with np.errstate(divide="ignore"):
-        tail = 1.0 / np.maximum(x**2 - 1.0, 1e-300)
-    return np.where(x <= 2.0, contact_spectrum(frequency_hz, contact_time), tail)
+
+    kind: str
+    duration: float = 0.0
+
+    def onset_length(self, sample_rate):
+        """Samples during which the force acts (0 for an ideal pulse)."""
+        return int(math.ceil(self.duration * sample_rate - 1e-9)) if self.duration > 0 else 0
+
+    def transform(self, s):
+        """``M(s)``: the factor a mode's impulse response is multiplied by once the force is over."""
+        s = np.asarray(s, dtype=complex)
+        tau = self.duration
+        if self.kind == "impulse" or (self.kind == "strike" and tau == 0.0):
+            return np.ones(s.shape, complex)
+        if self.kind == "strike":
+            return (0.5 * math.pi / tau) * _sin_integral(s, math.pi / tau, tau)
+        if tau == 0.0:  # an instant release from the held deflection
+            return -1.0 / s
+        return self._held_change(s, tau) - np.exp(-s * tau) / s
+
+    def _held_change(self, s, t):
+        """``int_0^t (r(u) - 1) e^(-s u) du`` of the release r(u) = (1 + cos(pi u / T)) / 2, t <= T."""
+        return 0.5 * (_cos_integral(s, math.pi / self.duration, t) - _e(s, t))
+
+    def partial(self, s, t):
+        """``P_t(s) = int_0^t p(u) e^(-s u) du`` for times `t` within the pulse (broadcasts)."""
+        tau = self.duration
+        if self.kind == "strike":
+            return (0.5 * math.pi / tau) * _sin_integral(s, math.pi / tau, t)
+        return self._held_change(s, t)
+
+    def force(self, t):
+        """The force (change, for a pluck) at times `t` within the pulse, in units of J or F0."""
+        t = np.asarray(t, dtype=float)
+        tau = self.duration
+        if self.kind == "strike":
+            return (0.5 * math.pi / tau) * np.sin(math.pi * t / tau)
+        return 0.5 * (np.cos(math.pi * t / tau) - 1.0)
 
 
-def excitation_weights(kind, frequency_hz, excitation_shape, pickup_shape, *, strength=1.0, contact_time=0.0):
-    """Signed amplitude and phase (rad) of every mode for an excitation.
+def check_measure(kind, measures):
+    """None if `kind` measured as `measures` starts from silence, else why it would not (one line).
+
+    An ideal impulse makes the velocity jump; a pluck starts from a held
+    deflection, so its displacement does not start at zero.
+    """
+    if kind == "impulse" and measures != "displacement":
+        return (f"an ideal impulse measured as {measures} starts with a step (a click at the first sample): "
+                "measure displacement, or use a strike with a short contact_time")
+    if kind == "pluck" and measures == "displacement":
+        return ("a pluck starts from the held deflection, so its displacement starts with a step: "
+                "measure velocity (the default) or acceleration")
+    return None
+
+
+def drive_coefficients(kind, frequency_hz, excitation_shape, pickup_shape, *, strength=1.0):
+    """Each mode's displacement response ``c`` (real, signed) to the excitation's unit force.
+
+    ``c = K phi_e phi_p / omega``, with K the impulse area J (strike, impulse)
+    or the held force F0 (pluck) that give `strength` (see the module notes).
 
     Parameters
     ----------
     kind : {"pluck", "strike", "impulse"}
     frequency_hz : array_like [shape=(M,)], Hz
     excitation_shape, pickup_shape : array_like [shape=(M,)]
-        Mode shapes at the excitation and pickup points.
     strength : float >= 0
-        Peak level in full-scale units (see module notes).
-    contact_time : float >= 0, s
-        Strike contact duration; 0 is an ideal (infinitely hard) strike.
 
     Returns
     -------
-    amplitude : ndarray [shape=(M,)]
-        Non-negative amplitudes.
-    phase : ndarray [shape=(M,)], rad
-        pi/2 for a pluck (cosine), 0 for a strike or impulse, plus pi where the
-        product of the shapes is negative.
+    ndarray [shape=(M,)]
     """
     if kind not in EXCITATIONS:
         raise ValueError(f"kind={kind!r} must be one of {EXCITATIONS}")
-    f = np.asarray(frequency_hz, dtype=float)
+    omega = 2.0 * math.pi * np.asarray(frequency_hz, dtype=float)
     phi_e = np.asarray(excitation_shape, dtype=float)
     phi_p = np.asarray(pickup_shape, dtype=float)
-    omega = 2.0 * math.pi * f
-    rolloff = 1.0
     if kind == "pluck":
-        drive = phi_e / omega**2
-        base_phase = 0.5 * math.pi
-    elif kind == "strike":
-        drive = phi_e / omega
-        if contact_time > 0:
-            rolloff = contact_envelope(f, contact_time)
-        base_phase = 0.0
+        norm = float(np.sum(phi_e * phi_e / (omega * omega)))  # static deflection at the point per unit force
     else:
-        drive = phi_e.copy()
-        base_phase = 0.0
-    # Scale to `strength`.  A pluck's sum(drive * phi_e) is the deflection at the
-    # pluck point (the triangle's height), a sum that converges as modes are
-    # added.  A strike's or impulse's sum grows with the mode count, so they
-    # are scaled by their largest single-mode term instead: the level of the
-    # low modes then does not depend on how many modes are computed.  The
-    # contact roll-off is applied after, so a longer contact takes away high
-    # modes without changing the level of the low ones.
-    terms = drive * phi_e
-    norm = float(np.sum(terms)) if kind == "pluck" else float(np.max(np.abs(terms), initial=0.0))
-    signed = drive * rolloff * phi_p * (strength / norm if norm > 0 else 0.0)
-    amplitude = np.abs(signed)
-    phase = np.where(signed < 0, base_phase + math.pi, base_phase)
-    return amplitude, phase
+        norm = float(np.max(np.abs(phi_e * phi_e / omega), initial=0.0))  # largest single mode
+    scale = strength / norm if norm > 0 else 0.0
+    return scale * phi_e * phi_p / omega
+
+
+def _measure_power(measures):
+    return MEASURES.index(measures)
+
+
+def onset_samples(pulse, coefficient, s, *, measures, reference_omega, sample_rate):
+    """The signal at the pickup while the force acts: samples ``0 .. pulse.onset_length - 1``.
+
+    Parameters
+    ----------
+    pulse : Pulse
+    coefficient : ndarray [shape=(M,)]
+        The modes' ``c`` (:func:`drive_coefficients`).
+    s : ndarray [shape=(M,)], 1/s
+        ``-sigma + i omega`` of each mode.
+    measures : {"displacement", "velocity", "acceleration"}
+    reference_omega : float > 0, rad/s
+        The fundamental's angular frequency (each derivative is divided by it).
+    sample_rate : float, Hz
+
+    Returns
+    -------
+    ndarray [shape=(n_onset,)], float64
+
+    Notes
+    -----
+    ``y(t) = Im[c (s/w1)**k e^(s t) P_t(s)] + extra``: the derivative of a
+    convolution adds the force times the derivative of the impulse response
+    at 0, which is ``Im[c] = 0`` for velocity and ``Im[c s] / w1**2 = c omega /
+    w1**2`` for acceleration; a pluck's displacement also carries its held
+    deflection ``-Im[c / s]``.
+    """
+    n = pulse.onset_length(sample_rate)
+    out = np.zeros(n)
+    if n == 0 or len(coefficient) == 0:
+        return out
+    k = _measure_power(measures)
+    s = np.asarray(s, dtype=complex)
+    weight = np.asarray(coefficient, dtype=float) * (s / reference_omega) ** k
+    for start in range(0, n, ONSET_BLOCK):
+        t = np.arange(start, min(start + ONSET_BLOCK, n))[:, None] / sample_rate
+        values = np.imag(weight[None, :] * np.exp(s[None, :] * t) * pulse.partial(s[None, :], t))
+        y = values.sum(axis=1)
+        if k == 2:
+            y += pulse.force(t[:, 0]) * float(np.sum(coefficient * s.imag)) / reference_omega**2
+        if k == 0 and pulse.kind == "pluck":
+            y += float(np.sum(-np.imag(coefficient / s)))
+        out[start : start + t.shape[0]] = y
+    return out

@@ -17,7 +17,11 @@ SFZ map
 -------
 One ``<group>`` per note x velocity with its key and velocity range, one
 ``<region>`` per round robin (``seq_position``); ``amp_veltrack=0`` because
-the samples already carry their dynamics.
+the samples already carry their dynamics.  Key-up behaves as ``synth midi``
+plays it: ``ampeg_release`` = the patch's ``release_t60`` (a sampler's release
+stage then fades the still-ringing sample over that time, as the damper
+does), or ``loop_mode=one_shot`` for a patch without dampers
+(``release_t60: null``: the sample plays to its end whatever the key does).
 """
 from __future__ import annotations
 
@@ -91,13 +95,15 @@ def velocity_ranges(velocities):
     return ranges
 
 
-def sfz_text(name, entries, *, comment_lines=()):
+def sfz_text(name, entries, *, comment_lines=(), release_t60=None):
     """An SFZ file mapping `entries` (manifest entries) onto keys and velocities.
 
     One ``<group>`` per note x velocity with ``lokey hikey pitch_keycenter
     lovel hivel seq_length``, one ``<region>`` per round robin with
     ``sample`` and ``seq_position``.  ``amp_veltrack=0``: the samples already
     carry their dynamics, so the sampler must not scale them by velocity again.
+    Key-up: ``ampeg_release=<release_t60>`` (seconds), or
+    ``loop_mode=one_shot`` when `release_t60` is None (no dampers).
     """
     groups = {}
     for entry in sorted(entries, key=lambda e: (e["midi"], e["velocity"], e["round_robin"])):
@@ -108,7 +114,8 @@ def sfz_text(name, entries, *, comment_lines=()):
         layers.setdefault(midi, []).append(velocity)
     lines = [f"// {name}: sample map written by synth {__version__}"]
     lines += [f"// {line}" for line in comment_lines]
-    lines += ["<global>", "amp_veltrack=0", ""]
+    key_up = "loop_mode=one_shot" if release_t60 is None else f"ampeg_release={release_t60:g}"
+    lines += ["<global>", "amp_veltrack=0", key_up, ""]
     for (midi, velocity), members in groups.items():
         lokey, hikey = keys[midi]
         lovel, hivel = velocity_ranges(layers[midi])[velocity]
@@ -147,7 +154,7 @@ def manifest_text(manifest):
     return text[:-2] + ',\n "files": [\n' + files + ("\n" if files else "") + " ]\n}\n"
 
 
-def index_texts(spec, jobs, entries, failed, *, lib_hash, gain, basis):
+def index_texts(spec, jobs, entries, failed, *, lib_hash, gain, basis, stale=()):
     """(manifest JSON text, SFZ text) of a library.
 
     Parameters
@@ -162,6 +169,9 @@ def index_texts(spec, jobs, entries, failed, *, lib_hash, gain, basis):
         The library's one gain (linear).
     basis : dict or None
         How the gain was decided.
+    stale : sequence of str
+        Files on disk that earlier manifests listed and this spec no longer
+        makes (kept listed until ``--prune`` deletes them).
     """
     render = spec.patch.render
     files = [entries[i] for i in sorted(entries)]
@@ -180,6 +190,8 @@ def index_texts(spec, jobs, entries, failed, *, lib_hash, gain, basis):
         "bit_depth": render.bit_depth,
         "duration_s": render.duration,
         "peak_db": render.peak_db,
+        "peak": render.peak,
+        "release_t60_s": spec.patch.damping.release_t60,
         "gain": gain,
         "gain_db": gain_db,
         "gain_basis": basis,
@@ -187,6 +199,7 @@ def index_texts(spec, jobs, entries, failed, *, lib_hash, gain, basis):
         "loudness_meter": LOUDNESS_METER,
         "n_files": len(jobs),
         "complete": len(current) == len(jobs),
+        "stale": sorted(stale),
         "failed": [{"file": jobs[i].file, "note": jobs[i].note, "velocity": jobs[i].velocity,
                     "round_robin": jobs[i].round_robin, "error": message} for i, message in sorted(failed.items())],
     }
@@ -197,4 +210,5 @@ def index_texts(spec, jobs, entries, failed, *, lib_hash, gain, basis):
         + (f" ({gain_db:+.2f} dB)" if gain_db is not None else "") + ", so velocity layers keep their dynamics",
         "listening caution: start playback quietly; long exposure to loud sound harms hearing",
     )
-    return manifest_text(manifest), sfz_text(spec.name, current, comment_lines=comments) + "\n"
+    sfz = sfz_text(spec.name, current, comment_lines=comments, release_t60=spec.patch.damping.release_t60)
+    return manifest_text(manifest), sfz + "\n"

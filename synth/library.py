@@ -81,6 +81,7 @@ __all__ = [
     "voice_job",
     "job_table",
     "sample_file_name",
+    "is_sample_file_name",
     "job_offsets",
     "patch_fingerprint",
     "input_hash",
@@ -97,7 +98,7 @@ MAX_POSITION_JITTER = 0.5  # fraction of the length
 MAX_DETUNE_CENTS = 100.0  # cents: one semitone
 DITHER_STREAM = 0x5EED  # first word of every per-file dither seed
 LOUDNESS_BLOCK_S = 0.4  # s, gating block of ITU-R BS.1770 integrated loudness
-_SAFE_FILE = re.compile(r"^[A-Za-z0-9][A-Za-z0-9_-]*_\d{3}_[A-Gs0-9-]+_v\d{3}_rr\d{2}\.wav$")
+_SAFE_FILE = re.compile(r"[A-Za-z0-9][A-Za-z0-9_-]*_\d{3}_[A-Gs0-9-]+_v\d{3}_rr\d{2}\.wav")  # whole name: fullmatch
 
 _SPEC_FIELDS = {
     "name": Field("slug"),
@@ -332,11 +333,16 @@ def _velocities(top, value):
 # Jobs
 
 
+def is_sample_file_name(text):
+    """True if `text` is a file name of the library pattern (no folder, nothing else)."""
+    return isinstance(text, str) and _SAFE_FILE.fullmatch(text) is not None
+
+
 def sample_file_name(name, midi, velocity, round_robin):
     """The file name of one sample (see the module notes); checked before use."""
     note = midi_to_note(midi).replace("#", "s")
     file = f"{name}_{int(midi):03d}_{note}_v{int(velocity):03d}_rr{int(round_robin):02d}.wav"
-    if not _SAFE_FILE.match(file):  # pragma: no cover - every part is checked above
+    if not _SAFE_FILE.fullmatch(file):  # pragma: no cover - every part is checked above
         raise ValueError(f"unsafe sample file name {file!r}")
     return file
 

@@ -313,7 +313,7 @@ _ENTRY_FIELDS = {
     "gain": Field("level", default=0.0, low=-120.0, high=24.0),
     "pan": Field("number", low=-1.0, high=1.0, nullable=True),
 }
-_MAP_RENDER = {key: replace(_RENDER_FIELDS[key], default=None) for key in ("sample_rate", "bit_depth", "peak_db")}
+_MAP_RENDER = {key: replace(_RENDER_FIELDS[key], default=None) for key in ("sample_rate", "bit_depth", "peak_db", "peak")}
 
 
 def _entry(section, key, folder):
@@ -385,6 +385,7 @@ class MidiRender:
     bit_depth: int
     n_channels: int
     peak_dbfs: float
+    true_peak_dbtp: float
     gain_db: float
     solves: int
     warnings: tuple
@@ -393,9 +394,9 @@ class MidiRender:
 def _setup(patch, map_file, sample_rate, bit_depth):
     """(ChannelMap, {patch path: index}, [Patch at the output rate], output settings) of --patch or --map.
 
-    Output settings (sample_rate, bit_depth, peak_db) come from the command
-    line, else from the ``--patch`` patch's ``render:`` or the map's
-    ``render:`` (default 48 kHz, 24-bit, -1 dBFS).
+    Output settings (sample_rate, bit_depth, peak_db, peak) come from the
+    command line, else from the ``--patch`` patch's ``render:`` or the map's
+    ``render:`` (default 48 kHz, 24-bit, -1 dBFS on the true peak).
     """
     given = {"sample_rate": (sample_rate, "--sample-rate"), "bit_depth": (bit_depth, "--bit-depth")}
     given = {name: pair for name, pair in given.items() if pair[0] is not None}
@@ -403,11 +404,11 @@ def _setup(patch, map_file, sample_rate, bit_depth):
         loaded = load_patch(patch, overrides={f"render.{name}": pair for name, pair in given.items()})
         chmap = ChannelMap({}, {}, MapEntry(Path(patch)), {})
         settings = {"sample_rate": loaded.render.sample_rate, "bit_depth": loaded.render.bit_depth,
-                    "peak_db": loaded.render.peak_db}
+                    "peak_db": loaded.render.peak_db, "peak": loaded.render.peak}
         patches = {Path(patch): loaded}
     else:
         chmap = load_channel_map(map_file)
-        settings = {name: _RENDER_FIELDS[name].default for name in ("sample_rate", "bit_depth", "peak_db")}
+        settings = {name: _RENDER_FIELDS[name].default for name in ("sample_rate", "bit_depth", "peak_db", "peak")}
         settings.update(chmap.render)
         settings.update({name: convert_option(_RENDER_FIELDS[name], value, option) for name, (value, option) in given.items()})
         patches = {}
@@ -503,11 +504,12 @@ def render_midi(song_path, *, output, patch=None, map_file=None, a4_hz=None, sam
     _mix(buffer, performance, assigned, voiced, cache.patches, bar)
     if make_folder:
         make_output_folder(output)
-    gain_db, peak_dbfs = write_song(output, buffer, sample_rate=rate, bit_depth=bits, peak_db=settings["peak_db"],
-                                    key=None if make_folder else "--output")
+    gain_db, peak_dbfs, true_peak_dbtp = write_song(output, buffer, sample_rate=rate, bit_depth=bits,
+                                                    peak_db=settings["peak_db"], peak=settings["peak"],
+                                                    key=None if make_folder else "--output")
     warnings = list(performance.warnings) + _tone_warnings(cache)
-    return MidiRender(output, len(performance.notes), n_out / rate, rate, bits, n_channels, peak_dbfs, gain_db,
-                      cache.solves, tuple(warnings))
+    return MidiRender(output, len(performance.notes), n_out / rate, rate, bits, n_channels, peak_dbfs,
+                      true_peak_dbtp, gain_db, cache.solves, tuple(warnings))
 
 
 def _voice(performance, assigned, cache, bar):

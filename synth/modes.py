@@ -294,6 +294,11 @@ class PartialTable:
         Extra per-mode columns from the resonator.
     parameters : dict
     warnings : tuple of str
+    onset : ndarray [shape=(n,)], float64
+        The signal's first n samples while the excitation's force acts (at
+        the render's sample rate); the modes above describe it from sample n on.
+    sample_rate : float or None, Hz
+        The rate the table was made for (Nyquist cut, onset).
     """
 
     name: str
@@ -308,6 +313,8 @@ class PartialTable:
     columns: dict = field(default_factory=dict)
     parameters: dict = field(default_factory=dict)
     warnings: tuple = ()
+    onset: np.ndarray = field(default_factory=lambda: frozen_array(()))
+    sample_rate: float | None = None
 
     @property
     def ratio(self):

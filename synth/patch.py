@@ -11,7 +11,7 @@ import math
 from dataclasses import dataclass, field, replace
 
 from .errors import COMMAND_LINE, PatchError
-from .excitation import EXCITATIONS
+from .excitation import DEFAULT_RELEASE_TIME_S, EXCITATIONS, MEASURES, Pulse, check_measure
 from .materials import MATERIALS, Material
 from .resonators import (
     RESONATOR_TYPES,
@@ -84,17 +84,28 @@ class Excitation:
         Where it is excited, in the resonator's position style; None where the
         resonator takes no positions.
     contact_time : float >= 0, s
-        How long a strike touches the object (0..1 s); it filters the high
-        modes.  Default 1 ms.
+        How long a strike touches the object (0..1 s): its half-sine force
+        pulse filters the high modes.  Default 1 ms.
     strength : float > 0, dimensionless
         Scale of every amplitude (at most 1e6); matters only with
         ``render.peak_db: null``.  Default 1.
+    release_time : float >= 0, s
+        How long a pluck's release takes (0..100 ms): the holding force
+        falls as a raised cosine.  Default
+        :data:`synth.excitation.DEFAULT_RELEASE_TIME_S` (0.2 ms).
     """
 
     kind: str = "pluck"
     position: Point | None = None
     contact_time: float = 1e-3  # s
     strength: float = 1.0
+    release_time: float = DEFAULT_RELEASE_TIME_S  # s
+
+    @property
+    def pulse(self):
+        """The force's time course (:class:`synth.excitation.Pulse`)."""
+        duration = {"strike": self.contact_time, "pluck": self.release_time}.get(self.kind, 0.0)
+        return Pulse(self.kind, duration)
 
 
 @dataclass(frozen=True)
@@ -106,9 +117,13 @@ class Pickup:
     position : Point or None
         In the resonator's position style; None weights every mode 1 (a
         listener who hears the whole object).
+    measures : {"displacement", "velocity", "acceleration"}
+        What the pickup reads.  Default velocity (displacement for an
+        impulse, whose velocity would start with a step).
     """
 
     position: Point | None = None  # None: every mode weighted 1
+    measures: str = "velocity"
 
 
 @dataclass(frozen=True)
@@ -123,14 +138,16 @@ class Damping:
         T60 at `high_frequency`, at most `t60`; None gives every partial `t60`.
     high_frequency : float > 0, Hz
         Frequency where `t60_high` holds; above the fundamental.  Default 4 kHz.
-    release_t60 : float > 0, s
-        T60 after a MIDI note-off (at most 3600 s).  Default 0.15 s.
+    release_t60 : float > 0 or None, s
+        T60 after a MIDI note-off (at most 3600 s), and the ending of a file
+        whose fixed duration would cut the sound; None: the object has no
+        dampers (it rings on after key-up).  Default 0.15 s.
     """
 
     t60: float = 3.0  # s, at the fundamental
     t60_high: float | None = None  # s, at high_frequency
     high_frequency: float = 4000.0  # Hz
-    release_t60: float = 0.15  # s, after note-off
+    release_t60: float | None = 0.15  # s, after note-off; None: no dampers
 
 
 @dataclass(frozen=True)
@@ -139,8 +156,10 @@ class RenderSettings:
 
     Attributes
     ----------
-    duration : float, s
-        Length of the output, :data:`MIN_DURATION_S` (1 ms) or more.  Default 3 s.
+    duration : float or "auto", s
+        Length of the output, :data:`MIN_DURATION_S` (1 ms) or more; "auto"
+        (the default) until every mode's envelope has summed below -90 dB of
+        the peak (at most :data:`synth.tone.AUTO_CAP_S`).
     sample_rate : int, Hz
         A whole number of Hz, :data:`MIN_SAMPLE_RATE` .. :data:`MAX_SAMPLE_RATE`.
         Default 48000.
@@ -152,13 +171,18 @@ class RenderSettings:
     max_modes : int
         Modes computed (1 .. :data:`MAX_MODES`), before those at or above
         Nyquist are dropped.  Default 256.
+    peak : {"true", "sample"}
+        What `peak_db` normalises: the true (inter-sample) peak of ITU-R
+        BS.1770-4 Annex 2 (the default: no reconstructed overs) or the
+        largest sample.
     """
 
-    duration: float = 3.0  # s
+    duration: float | str = "auto"  # s, or "auto"
     sample_rate: int = 48000  # Hz
     bit_depth: int = 24
     peak_db: float | None = -1.0  # dBFS; None keeps the absolute scale
     max_modes: int = 256
+    peak: str = "true"
 
 
 @dataclass(frozen=True)
@@ -208,21 +232,29 @@ _EXCITATION_FIELDS = {
     "position": Field("any"),
     "contact_time": Field("time", default=1e-3, low=0.0, high=1.0),
     "strength": Field("number", default=1.0, positive=True, high=1e6),
+    "release_time": Field("time", default=DEFAULT_RELEASE_TIME_S, low=0.0, high=0.1),
+}
+
+_PICKUP_FIELDS = {
+    "position": Field("any"),
+    "measures": Field("choice", choices=MEASURES),
 }
 
 _DAMPING_FIELDS = {
     "t60": Field("time", default=3.0, positive=True, high=3600.0),
     "t60_high": Field("time", positive=True, high=3600.0),
     "high_frequency": Field("frequency", default=4000.0, positive=True),
-    "release_t60": Field("time", default=0.15, positive=True, high=3600.0),
+    "release_t60": Field("time", default=0.15, positive=True, high=3600.0, nullable=True),
 }
 
 _RENDER_FIELDS = {
-    "duration": Field("time", default=3.0, positive=True, low=MIN_DURATION_S),
+    "duration": Field("time", default="auto", positive=True, low=MIN_DURATION_S, keywords=("auto",),
+                      takes="a time, e.g. '4 s', or auto (until the sound has decayed 90 dB)"),
     "sample_rate": Field("frequency", default=48000, low=MIN_SAMPLE_RATE, high=MAX_SAMPLE_RATE, whole=True),
     "bit_depth": Field("choice", default=24, choices=(16, 24, 32)),
     "peak_db": Field("level", default=-1.0, nullable=True, high=0.0, low=-120.0),
     "max_modes": Field("int", default=256, low=1, high=MAX_MODES),
+    "peak": Field("choice", default="true", choices=("true", "sample")),
 }
 
 
@@ -308,7 +340,7 @@ def _build_resonator(resonator):
 
 _SECTION_KEYS = {
     "excitation": _EXCITATION_FIELDS,
-    "pickup": ("position",),
+    "pickup": _PICKUP_FIELDS,
     "damping": _DAMPING_FIELDS,
     "render": _RENDER_FIELDS,
 }
@@ -351,14 +383,22 @@ def patch_from_mapping(mapping, *, file="<patch>", overrides=None):
         position=_position(exc, "position", style, _DEFAULT_POSITIONS[style]),
         contact_time=exc_values["contact_time"],
         strength=exc_values["strength"],
+        release_time=exc_values["release_time"],
     )
     pick = sections["pickup"]
-    check_keys(pick, {"position"})
-    pickup = Pickup(position=_position(pick, "position", style, None))
+    pick_values = read_section(pick, _PICKUP_FIELDS)
+    measures = pick_values["measures"] or ("displacement" if excitation.kind == "impulse" else "velocity")
+    problem = check_measure(excitation.kind, measures)
+    if problem is not None:
+        raise pick.error("measures", problem)
+    pickup = Pickup(position=_position(pick, "position", style, None), measures=measures)
     damp_values = read_section(sections["damping"], _DAMPING_FIELDS)
     if damp_values["t60_high"] is not None and damp_values["t60_high"] > damp_values["t60"]:
         raise sections["damping"].error("t60_high", f"must not exceed t60 ({damp_values['t60']:g} s): higher partials decay faster")
-    render_values = read_section(sections["render"], _RENDER_FIELDS)
+    render_section = sections["render"]
+    if render_section.mapping.get("peak") is True:  # YAML reads an unquoted `true` as a boolean
+        render_section.mapping["peak"] = "true"
+    render_values = read_section(render_section, _RENDER_FIELDS)
     render = RenderSettings(**render_values)
     lines = _collect_lines(mapping)
     patch = Patch(
@@ -420,7 +460,10 @@ def estimate_render_bytes(duration, sample_rate, n_modes):
 
 
 def _check_size(patch, overrides):
-    need = estimate_render_bytes(patch.render.duration, patch.render.sample_rate, patch.render.max_modes)
+    from .tone import AUTO_CAP_S
+
+    duration = AUTO_CAP_S if patch.render.duration == "auto" else patch.render.duration
+    need = estimate_render_bytes(duration, patch.render.sample_rate, patch.render.max_modes)
     if need > MEMORY_LIMIT_BYTES:
         for key in ("render.duration", "render.sample_rate", "render.max_modes"):
             if key in overrides:

@@ -12,15 +12,16 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from .damping import two_point_t60
+from .damping import LN1000, two_point_t60
 from .engine import render_modes
-from .excitation import excitation_weights
+from .excitation import MEASURES, drive_coefficients, onset_samples
 from .modes import NODE_TOLERANCE, PartialTable, frozen_array
 from .patch import MAX_SAMPLE_RATE
 from .resonators import UnreachablePitch, resonator_name
 from .solvecache import DEFAULT_CACHE
+from .tone import Tone, plan_ending, render_tone
 
-__all__ = ["mode_set", "partial_table", "render_patch", "Unweighted", "unweighted_partials", "weigh"]
+__all__ = ["mode_set", "partial_table", "render_patch", "patch_ending", "Unweighted", "unweighted_partials", "weigh"]
 
 
 def _coordinate(point):
@@ -77,11 +78,11 @@ def unweighted_partials(patch, *, modes=None, detune_cents=0.0, cache=None):
     nyquist = patch.render.sample_rate / 2.0
     keep = modes.frequency_hz < nyquist
     if not np.all(keep):
-        dropped = [modes.labels[i] for i in np.flatnonzero(~keep)]
+        count = int(np.count_nonzero(~keep))
+        # A degenerate pair (cos and sin) shares one label: name each once.
+        dropped = list(dict.fromkeys(modes.labels[i] for i in np.flatnonzero(~keep)))
         shown = ", ".join(dropped[:3]) + (f" ... {dropped[-1]}" if len(dropped) > 3 else "")
-        warnings.append(
-            f"{len(dropped)} modes at or above Nyquist ({nyquist:g} Hz) left out: {shown}"
-        )
+        warnings.append(f"{count} modes at or above Nyquist ({nyquist:g} Hz) left out: {shown}")
     if not np.any(keep):
         raise _all_above_nyquist(patch, float(modes.frequency_hz[0]), nyquist)
     fundamental = float(modes.frequency_hz[0])
@@ -107,7 +108,14 @@ def unweighted_partials(patch, *, modes=None, detune_cents=0.0, cache=None):
 
 
 def weigh(patch, unweighted):
-    """The second half of :func:`partial_table`: the excitation's weights and the levels.
+    """The second half of :func:`partial_table`: the excitation's pulse, the pickup, the levels.
+
+    Each mode's displacement response to the excitation's unit force
+    (:func:`synth.excitation.drive_coefficients`, over every computed mode so
+    a level does not depend on the sample rate) is taken through the pulse's
+    transform at the mode's complex frequency and the pickup's measure:
+    the amplitude and phase of the damped sinusoid the mode is once the force
+    is over, and the onset samples while it acts (see :mod:`synth.excitation`).
 
     Raises
     ------
@@ -116,27 +124,31 @@ def weigh(patch, unweighted):
         mode, or no strength).
     """
     modes, keep, kept = unweighted.modes, unweighted.keep, unweighted.kept
-    # Weights are computed over every computed mode, then the ones at or above
-    # Nyquist are dropped: the level of a mode does not depend on the sample rate.
-    amplitude, phase = excitation_weights(
-        patch.excitation.kind,
-        modes.frequency_hz,
-        modes.excitation_shape,
-        modes.pickup_shape,
-        strength=patch.excitation.strength,
-        contact_time=patch.excitation.contact_time,
+    excitation = patch.excitation
+    coefficient = drive_coefficients(
+        excitation.kind, modes.frequency_hz, modes.excitation_shape, modes.pickup_shape, strength=excitation.strength
     )
-    if "level_override_db" in modes.columns:
-        # Levels given per mode (a measured partial set) replace the excitation's
-        # weighting; the amplitudes sum to `strength`, as a pluck's do at its point.
-        weight = 10.0 ** (np.asarray(modes.columns["level_override_db"], dtype=float) / 20.0)
-        amplitude = patch.excitation.strength * weight / np.sum(weight)
     scale = np.abs(modes.excitation_shape * modes.pickup_shape)
-    null = scale <= NODE_TOLERANCE * max(float(np.max(scale)), 1e-300)
-    amplitude = np.where(null, 0.0, amplitude)
-    amplitude, phase, null = amplitude[keep], phase[keep], null[keep]
+    null = (scale <= NODE_TOLERANCE * max(float(np.max(scale)), 1e-300))[keep]
+    coefficient = np.where(null, 0.0, coefficient[keep])
+    sample_rate = patch.render.sample_rate
+    omega = 2.0 * math.pi * kept.frequency_hz
+    s = -LN1000 / unweighted.t60_s + 1j * omega
+    reference = 2.0 * math.pi * unweighted.fundamental_hz
+    power = MEASURES.index(patch.pickup.measures)
+    pulse = excitation.pulse
+    response = (s / reference) ** power * pulse.transform(s)
+    if "level_override_db" in kept.columns:
+        # Levels given per mode (a measured partial set): the audio holds exactly these,
+        # the amplitudes summing to `strength`; the pulse keeps its time course and phases.
+        weight = 10.0 ** (np.asarray(kept.columns["level_override_db"], dtype=float) / 20.0)
+        target = np.where(null, 0.0, excitation.strength * weight / np.sum(np.where(null, 0.0, weight)))
+        coefficient = target / np.abs(response)
+    complex_amplitude = coefficient * response
+    amplitude = np.abs(complex_amplitude)
+    phase = np.mod(np.angle(complex_amplitude), 2.0 * math.pi)
     peak = float(np.max(amplitude)) if amplitude.size else 0.0
-    if patch.excitation.strength == 0.0:
+    if excitation.strength == 0.0:
         raise patch.error("excitation.strength", "must be > 0 to sound")
     if peak <= 0.0:
         excitation_sounds = np.any(np.abs(kept.excitation_shape) > NODE_TOLERANCE * np.max(np.abs(kept.excitation_shape), initial=0.0))
@@ -145,6 +157,9 @@ def weigh(patch, unweighted):
             key,
             f"nothing would sound: the {key.split('.')[0]} sits on a node of every mode below Nyquist",
         )
+    audible = amplitude > 0
+    onset = onset_samples(pulse, coefficient[audible], s[audible], measures=patch.pickup.measures,
+                          reference_omega=reference, sample_rate=sample_rate)
     with np.errstate(divide="ignore"):
         level_db = np.where(null, np.nan, 20.0 * np.log10(np.maximum(amplitude, 1e-300) / peak))
     return PartialTable(
@@ -158,9 +173,22 @@ def weigh(patch, unweighted):
         level_db=frozen_array(level_db),
         labels=kept.labels,
         columns={k: v for k, v in kept.columns.items() if k != "t60_s"},
-        parameters=kept.parameters,
+        parameters={**kept.parameters, **_excitation_parameters(patch)},
         warnings=unweighted.warnings,
+        onset=frozen_array(onset),
+        sample_rate=float(sample_rate),
     )
+
+
+def _excitation_parameters(patch):
+    """What the report says of the excitation and the pickup."""
+    excitation = patch.excitation
+    out = {"excitation": excitation.kind, "pickup_measures": patch.pickup.measures}
+    if excitation.kind == "strike":
+        out["contact_time_s"] = excitation.contact_time
+    elif excitation.kind == "pluck":
+        out["release_time_s"] = excitation.release_time
+    return out
 
 
 def partial_table(patch, *, modes=None, detune_cents=0.0, cache=None):
@@ -221,22 +249,27 @@ def _pitch_key(patch):
     return "resonator"
 
 
-def render_patch(patch, *, table=None):
+def patch_ending(patch, table):
+    """How `patch`'s file ends (:func:`synth.tone.plan_ending`): its length, a damper or a fade."""
+    return plan_ending(Tone.from_table(table), duration=patch.render.duration, sample_rate=patch.render.sample_rate,
+                       release_t60=patch.damping.release_t60)
+
+
+def render_patch(patch, *, table=None, ending=None):
     """Render `patch` to a float32 signal at its own scale (not normalised).
+
+    The signal is the onset (while the excitation's force acts) and then the
+    modes, as long as `ending` says (default :func:`patch_ending`: ``render.duration``,
+    or ``auto``; a fixed duration that would cut the sound lets the damper fall first).
 
     Returns
     -------
-    signal : ndarray [shape=(round(duration * sample_rate),)], float32
+    signal : ndarray [shape=(ending.n_samples,)], float32
     table : PartialTable
     """
     table = partial_table(patch) if table is None else table
-    audible = table.amplitude > 0
-    signal = render_modes(
-        table.frequency_hz[audible],
-        table.t60_s[audible],
-        table.amplitude[audible],
-        patch.render.duration,
-        patch.render.sample_rate,
-        phase=table.phase[audible],
-    )
+    tone = Tone.from_table(table)
+    ending = patch_ending(patch, table) if ending is None else ending
+    signal = render_tone(tone, ending.n_samples, patch.render.sample_rate, damper=ending.damper,
+                         release_t60=patch.damping.release_t60, fade=ending.fade)
     return signal, table

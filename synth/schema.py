@@ -94,6 +94,8 @@ class Field:
         sample rate in Hz).
     takes : str
         What the key takes, for messages (default: from `kind`).
+    keywords : tuple of str
+        Words accepted as they are besides the kind's values (``("auto",)``).
     """
 
     kind: str
@@ -106,6 +108,7 @@ class Field:
     nullable: bool = False
     whole: bool = False
     takes: str = ""
+    keywords: tuple = ()
 
 
 class Section:
@@ -243,6 +246,8 @@ def convert(field, value):
         takes = _takes(field)
         raise ValueError(f"must have a value, not null: give {takes}" if takes else "must have a value, not null")
     kind = field.kind
+    if isinstance(value, str) and value in field.keywords:
+        return value
     if kind == "any":
         return value
     if kind == "bool":

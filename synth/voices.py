@@ -24,11 +24,10 @@ and the chunked, normalised writing of the song buffer.
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass
-
 import numpy as np
 
 from .audio import (
+    BYTES_PER_SAMPLE,
     DITHER_SEED,
     SUBTYPES,
     atomic_output,
@@ -39,8 +38,10 @@ from .audio import (
 )
 from .damping import LN1000
 from .engine import render_modes
-from .modes import frozen_array
 from .pipeline import unweighted_partials, weigh
+from .tone import Tone, decay_samples
+from .wavmeta import needs_rf64, zero_peak_timestamp
+from .tone import envelope as _envelope
 from .units import A4_HZ
 from .voicing import voice_patch
 
@@ -62,36 +63,6 @@ DECAY_DB = 100.0  # dB below its start at which a voice stops being rendered
 MAX_SEGMENT_SAMPLES = 1 << 16  # samples; longest single engine call (bounds working memory)
 BEND_STEP_S = 0.002  # s; pitch-bend changes are placed on a grid of this step
 WRITE_CHUNK_FRAMES = 1 << 16  # frames converted and written at a time
-
-
-@dataclass(frozen=True)
-class Tone:
-    """The audible partials of one voiced note: what a voice renders.
-
-    Attributes
-    ----------
-    frequency_hz, amplitude, phase, t60_s : ndarray [shape=(M,)]
-        Modes with amplitude > 0 of the voiced patch's partial table (Hz,
-        full-scale units, rad, s); read-only.
-    fundamental_hz : float, Hz
-    warnings : tuple of str
-        The partial table's warnings (stress near breaking, modes above Nyquist).
-    """
-
-    frequency_hz: np.ndarray
-    amplitude: np.ndarray
-    phase: np.ndarray
-    t60_s: np.ndarray
-    fundamental_hz: float
-    warnings: tuple = ()
-
-    @classmethod
-    def from_table(cls, table):
-        """The audible modes of a :class:`~synth.modes.PartialTable`."""
-        keep = table.amplitude > 0
-        return cls(*(frozen_array(values[keep]) for values in (table.frequency_hz, table.amplitude, table.phase,
-                                                                 table.t60_s)),
-                   float(table.fundamental_hz), tuple(table.warnings))
 
 
 class VoicingCache:
@@ -179,61 +150,6 @@ def _sigma(t60_s, sample_rate):
     return LN1000 / (np.asarray(t60_s, dtype=np.float64) * sample_rate)
 
 
-def _envelope(abs_amp, sigma, n):
-    """Bound sum_m |a_m| exp(-sigma_m n) on a voice's amplitude after n samples."""
-    return float(np.sum(abs_amp * np.exp(-sigma * n)))
-
-
-def decay_samples(abs_amp, sigma, level):
-    """Samples until ``sum_m |a_m| exp(-sigma_m n)`` falls to `level` (0 if already).
-
-    Parameters
-    ----------
-    abs_amp : ndarray [shape=(M,)], >= 0
-    sigma : ndarray [shape=(M,)], nepers per sample, >= 0
-    level : float > 0
-
-    Returns
-    -------
-    float
-        The smallest whole n at which the bound is <= `level` (no later than
-        the sample at which every mode is below level / M); ``inf`` if a
-        mode with a > 0 never decays.
-
-    Notes
-    -----
-    ``g(n) = log sum_m |a_m| e^(-sigma_m n) - log(level)`` is convex and
-    decreasing, so Newton's method started at n = 0 climbs to its root from
-    below without overshooting; a few steps and a whole-sample check give
-    the same n as bisection, in a handful of O(M) evaluations.
-    """
-    if _envelope(abs_amp, sigma, 0) <= level:
-        return 0.0
-    loud = abs_amp * abs_amp.size > level
-    if np.any(loud & (sigma <= 0)):
-        return math.inf
-    # At n_m every mode is below level / M, so the sum is below level.
-    high = math.ceil(float(np.max(np.log(abs_amp[loud] * abs_amp.size / level) / sigma[loud])))
-    n = 0.0
-    log_level = math.log(level)
-    for _ in range(60):
-        terms = abs_amp * np.exp(-sigma * n)
-        total = float(np.sum(terms))
-        if total <= 0.0:
-            break
-        slope = float(np.dot(terms, sigma)) / total  # -g'(n) > 0
-        step = (math.log(total) - log_level) / slope
-        n = min(n + step, float(high))
-        if step < 0.25:
-            break
-    whole = min(max(int(math.ceil(n)), 1), high)
-    while whole < high and _envelope(abs_amp, sigma, whole) > level:
-        whole += 1
-    while whole > 1 and _envelope(abs_amp, sigma, whole - 1) <= level:
-        whole -= 1
-    return float(whole)
-
-
 def voice_end(tone, *, onset, damper, release_t60, sample_rate):
     """Sample at which a voice has decayed :data:`DECAY_DB` below its start.
 
@@ -254,7 +170,7 @@ def voice_end(tone, *, onset, damper, release_t60, sample_rate):
     amp = np.abs(tone.amplitude)
     level = 10.0 ** (-DECAY_DB / 20.0) * float(np.sum(amp))
     sigma = _sigma(tone.t60_s, sample_rate)
-    if damper is not None:
+    if damper is not None and release_t60 is not None:
         held = max(damper - onset, 0)
         # The free decay ends at or before the damper exactly when the bound has
         # reached the level by then (it only falls): only then is it needed.
@@ -318,8 +234,9 @@ def render_voice(tone, *, onset, stop, damper, release_t60, sample_rate, bend=No
     damper : int or None, samples
         Absolute sample at which the damper falls; at or before `onset`
         means the voice is damped from its first sample.
-    release_t60 : float > 0, s
-        T60 ceiling after the damper falls.
+    release_t60 : float > 0 or None, s
+        T60 ceiling after the damper falls (None: the patch has no dampers;
+        the voice rings on).
     sample_rate : float, Hz
     bend : (samples, ratios) or None
         The channel's pitch-bend steps (:func:`quantise_bends`).
@@ -333,18 +250,29 @@ def render_voice(tone, *, onset, stop, damper, release_t60, sample_rate, bend=No
 
     Notes
     -----
+    The voice starts with the tone's onset samples (while the excitation's
+    force acts; neither a damper nor a bend changes them), then its modes.
     Modes whose bent frequency reaches Nyquist are silent in that segment
     (they keep their state, and sound again if the bend comes back down).
     """
     amp = np.array(tone.amplitude, dtype=np.float64)
     phase = np.array(tone.phase, dtype=np.float64)
     t60_free = np.asarray(tone.t60_s, dtype=np.float64)
-    t60_damped = np.minimum(t60_free, release_t60)
+    if release_t60 is None:  # no dampers: a key-up changes nothing
+        damper = None
+    t60_damped = t60_free if release_t60 is None else np.minimum(t60_free, release_t60)
     nyquist = 0.5 * sample_rate
     damped = damper is not None and damper <= onset
     ratio = _bend_at(bend, onset)
     changes = _changes(onset, stop, damper, bend)
     position, index = int(onset), 0
+    n_on = min(tone.onset.size, max(int(stop) - position, 0))
+    if n_on:
+        yield position, np.asarray(tone.onset[:n_on], dtype=np.float32)
+        amp *= np.exp(-_sigma(t60_free, sample_rate) * n_on)
+        phase = np.mod(phase + (2.0 * math.pi / sample_rate) * tone.frequency_hz * ratio * n_on, 2.0 * math.pi)
+        position += n_on
+        index, damped, ratio = _apply_changes(changes, index, position, damped, ratio)
     while position < stop:
         boundary = changes[index][0] if index < len(changes) else stop
         end = min(boundary, position + MAX_SEGMENT_SAMPLES)
@@ -357,12 +285,18 @@ def render_voice(tone, *, onset, stop, damper, release_t60, sample_rate, bend=No
         amp *= np.exp(-_sigma(t60, sample_rate) * length)
         phase = np.mod(phase + (2.0 * math.pi / sample_rate) * frequency * length, 2.0 * math.pi)
         position = end
-        while index < len(changes) and changes[index][0] <= position:
-            if changes[index][1] is None:
-                damped = True
-            else:
-                ratio = changes[index][1]
-            index += 1
+        index, damped, ratio = _apply_changes(changes, index, position, damped, ratio)
+
+
+def _apply_changes(changes, index, position, damped, ratio):
+    """(index, damped, ratio) after the changes up to `position`: a damper (None) or a new bend ratio."""
+    while index < len(changes) and changes[index][0] <= position:
+        if changes[index][1] is None:
+            damped = True
+        else:
+            ratio = changes[index][1]
+        index += 1
+    return index, damped, ratio
 
 
 def _exact_length(signal, length):
@@ -374,7 +308,7 @@ def _exact_length(signal, length):
     return out
 
 
-def write_song(path, buffer, *, sample_rate, bit_depth, peak_db, key=None):
+def write_song(path, buffer, *, sample_rate, bit_depth, peak_db, peak="true", key=None):
     """Normalise `buffer` in place and write it atomically, a chunk at a time.
 
     Parameters
@@ -388,6 +322,10 @@ def write_song(path, buffer, *, sample_rate, bit_depth, peak_db, key=None):
     bit_depth : {16, 24, 32}
     peak_db : float or None
         Peak target in dBFS, or None to keep the absolute scale.
+    peak : {"true", "sample"}
+        What `peak_db` holds: the true peak (ITU-R BS.1770-4 Annex 2, read a
+        segment at a time, see :func:`synth.truepeak.true_peak`) or the
+        largest sample.
     key : str or None
         The option that named `path`, for the error if it cannot be written
         (see :class:`synth.audio.atomic_output`).
@@ -397,7 +335,9 @@ def write_song(path, buffer, *, sample_rate, bit_depth, peak_db, key=None):
     gain_db : float
         Gain applied.
     peak_dbfs : float
-        Peak of what was written (before quantisation), dBFS.
+        Sample peak of what was written (before quantisation), dBFS.
+    true_peak_dbtp : float
+        Its true peak, dBTP.
 
     Raises
     ------
@@ -410,15 +350,19 @@ def write_song(path, buffer, *, sample_rate, bit_depth, peak_db, key=None):
     Notes
     -----
     The gain (and every error) is that of :func:`synth.audio.normalise`,
-    applied to the song's peak.  16-bit TPDF dither uses the seed of
+    applied to the song's peak (`peak`); a clip at absolute scale is judged
+    on the sample peak, as there.  16-bit TPDF dither uses the seed of
     :func:`synth.audio.write_audio` for the first chunk and ``(seed, k)``
     for chunk k, so a song shorter than one chunk writes the same bytes as
     ``write_audio`` would.
     """
     import soundfile
 
+    from .truepeak import true_peak
+
     fmt = check_output_path(path, bit_depth)
     rate = whole_sample_rate(sample_rate)
+    measure = peak
     peak = 0.0
     for start in range(0, buffer.shape[0], WRITE_CHUNK_FRAMES):
         chunk_peak = float(np.max(np.abs(buffer[start : start + WRITE_CHUNK_FRAMES])))
@@ -426,15 +370,25 @@ def write_song(path, buffer, *, sample_rate, bit_depth, peak_db, key=None):
             peak = chunk_peak  # normalise() names the problem
             break
         peak = max(peak, chunk_peak)
-    _, gain_db = normalise(np.array([peak], dtype=np.float32), peak_db=peak_db, bit_depth=bit_depth)
+    true = true_peak(buffer, rate) if math.isfinite(peak) and peak > 0.0 else peak
+    level = true if (peak_db is not None and measure == "true") else peak
+    _, gain_db = normalise(np.array([level], dtype=np.float32), peak_db=peak_db, bit_depth=bit_depth)
     if gain_db:
         buffer *= np.float32(10.0 ** (gain_db / 20.0))
     channels = 1 if buffer.ndim == 1 else buffer.shape[1]
+    if fmt == "WAV" and needs_rf64(buffer.shape[0], channels, BYTES_PER_SAMPLE[bit_depth]):
+        fmt = "RF64"  # a WAV's 32-bit sizes would overflow: never written truncated
     with atomic_output(path, key=key) as tmp:
         with soundfile.SoundFile(str(tmp), "w", samplerate=rate, channels=channels,
                                  subtype=SUBTYPES[bit_depth], format=fmt) as handle:
             for k, start in enumerate(range(0, buffer.shape[0], WRITE_CHUNK_FRAMES)):
                 seed = DITHER_SEED if k == 0 else (DITHER_SEED, k)
                 handle.write(quantise(buffer[start : start + WRITE_CHUNK_FRAMES], bit_depth, seed=seed))
-    peak *= 10.0 ** (gain_db / 20.0)
-    return gain_db, (20.0 * math.log10(peak) if peak > 0 else -math.inf)
+        if fmt == "WAV" and bit_depth == 32:
+            zero_peak_timestamp(tmp)  # libsndfile's PEAK chunk carries a wall-clock time
+    scale = 10.0 ** (gain_db / 20.0)
+    return gain_db, _db(peak * scale), _db(true * scale)
+
+
+def _db(level):
+    return 20.0 * math.log10(level) if level > 0 else -math.inf

@@ -165,7 +165,7 @@ CASES = [
     pytest.param((sub("  sample_rate: 8000", "  samplerate: 8000"),), "render.samplerate", 23,
                  r"did you mean 'sample_rate'\? \(allowed: bit_depth, duration", id="unknown-render-key"),
     pytest.param((sub("  bit_depth: 24", "  colour: blue"),), "render.colour", 24,
-                 r"unknown key \(allowed: bit_depth, duration, max_modes, peak_db, sample_rate\)",
+                 r"unknown key \(allowed: bit_depth, duration, max_modes, peak, peak_db, sample_rate\)",
                  id="unknown-key-no-suggestion"),
     # wrong types
     pytest.param((sub("  length: 650 mm", "  length: true"),), "resonator.length", 5,
@@ -350,7 +350,7 @@ CASES = [
                  r"missing required key \(a plain name of letters, digits, '-' and '_'\)$", id="missing-name-takes"),
     pytest.param((sub("excitation:", "excitation: 5"), drop("  type: pluck"), drop("  position: 0.12"),
                   drop("  contact_time: 1.5 ms"), drop("  strength: 1.0")), "excitation", 9,
-                 r"must be a mapping of keys, got int 5 \(allowed keys: contact_time, position, strength, type\)$",
+                 r"must be a mapping of keys, got int 5 \(allowed keys: contact_time, position, release_time, strength, type\)$",
                  id="section-not-mapping-lists-keys"),
     # keys YAML reads as something other than a name
     pytest.param((sub("  ends: pinned", "  ends: pinned\n  ~: x"),), None, 9,

@@ -196,15 +196,20 @@ def test_manifest_fields(library):
 
 
 def test_one_gain_and_levels_read_back(library):
-    """The loudest sample sits at render.peak_db; every manifest peak matches the WAV read back."""
+    """The loudest true peak sits at render.peak_db (render.peak: true, the default); every manifest
+    peak matches the WAV read back, the true peak an independent 4x oversampling (scipy.signal.resample_poly)."""
     folder, _, _ = library
-    peaks = {}
+    peaks, true_peaks = {}, {}
     for entry in manifest_of(folder / "lib")["files"]:
         data, rate = read_wav(folder / "lib" / entry["file"])
         assert rate == 16000 and len(data) == 8000
         peaks[entry["file"]] = 20 * math.log10(np.max(np.abs(data)))
         assert peaks[entry["file"]] == pytest.approx(entry["peak_dbfs"], abs=1e-3)  # 24-bit rounding
-    assert max(peaks.values()) == pytest.approx(PEAK_DB, abs=1e-3)
+        true_peaks[entry["file"]] = 20 * math.log10(np.max(np.abs(scipy.signal.resample_poly(data, 4, 1))))
+        assert true_peaks[entry["file"]] == pytest.approx(entry["true_peak_dbtp"], abs=0.2)
+        assert entry["true_peak_dbtp"] >= entry["peak_dbfs"] - 1e-6
+    loudest = max(e["true_peak_dbtp"] for e in manifest_of(folder / "lib")["files"])
+    assert loudest == pytest.approx(PEAK_DB, abs=1e-3)
     assert min(peaks.values()) < PEAK_DB - 6.0  # no file was normalised on its own
 
 
@@ -257,7 +262,8 @@ def test_loudness_measured_again_from_the_files(library):
 def test_sfz_map_parsed_back(library):
     folder, _, _ = library
     glob, regions = parse_sfz((folder / "lib" / "rig.sfz").read_text(encoding="utf-8"))
-    assert glob == {"amp_veltrack": "0"}  # the samples already carry their dynamics
+    # The samples carry their dynamics; key-up fades them over the patch's release_t60, as synth midi does.
+    assert glob == {"amp_veltrack": "0", "ampeg_release": "0.15"}
     files = {e["file"]: e for e in manifest_of(folder / "lib")["files"]}
     assert sorted(r["sample"] for r in regions) == sorted(files)
     groups = {}
@@ -379,7 +385,8 @@ def test_bad_job_is_reported_and_the_rest_go_on(tmp_path, capsys):
 
 
 def test_absolute_scale_keeps_gain_one(tmp_path):
-    spec = make_spec(tmp_path, SPEC, RIG.replace("peak_db: -1.0", "peak_db: null").replace("max_modes: 48", "max_modes: 8"))
+    quiet = RIG.replace("peak_db: -1.0", "peak_db: null").replace("max_modes: 48", "max_modes: 8")
+    spec = make_spec(tmp_path, SPEC, quiet.replace("position: 0.15", "position: 0.15\n  strength: 0.3"))
     result = build_library(spec, workers=1, progress=False)
     assert result.exit_status == 0 and result.gain == 1.0
     assert manifest_of(tmp_path / "lib")["library"]["gain_basis"]["method"].startswith("absolute scale")
@@ -467,13 +474,18 @@ def test_loudness_of_short_or_silent_samples_is_null():
     assert value is None and "-70 LUFS absolute gate" in note
 
 
-def test_peak_measurement_is_exact(tmp_path):
+@pytest.mark.parametrize("peak", ["sample", "true"])
+def test_peak_measurement_is_exact(tmp_path, peak):
     """The bounded early-stopping peak equals the full render's peak (float32 rounding aside)."""
-    spec = load_library_spec(make_spec(tmp_path, SPEC, RIG.replace("duration: 0.5 s", "duration: 4 s")))
+    from synth.truepeak import true_peak
+
+    rig = RIG.replace("duration: 0.5 s", "duration: 4 s").replace("peak_db: -1.0", f"peak_db: -1.0\n  peak: {peak}")
+    spec = load_library_spec(make_spec(tmp_path, SPEC, rig))
     for job in library_jobs(spec)[::3]:
         patch = voice_job(spec, job)
         signal, _ = render_patch(patch)
-        assert _measure_peak(patch) == pytest.approx(float(np.max(np.abs(signal))), rel=1e-5)
+        full = true_peak(signal, 16000) if peak == "true" else float(np.max(np.abs(signal)))
+        assert _measure_peak(patch) == pytest.approx(full, rel=1e-5)
 
 
 def test_variation_is_seeded_by_the_job_not_the_order(tmp_path):
@@ -579,3 +591,59 @@ def test_patch_errors_name_the_patch_file(tmp_path, monkeypatch, capsys):
     write(tmp_path, "spec.yaml", "patch: rig.yaml\nnotes: [A2]\n")
     assert main(["batch", "spec.yaml"]) == 2
     assert capsys.readouterr().err.startswith("synth: error: rig.yaml:5: resonator.lenght: unknown key")
+
+
+def test_stale_files_are_named_and_pruned_exactly(library, tmp_path, capsys):
+    """A smaller spec: the files the previous manifest listed and it no longer makes are named;
+    --prune deletes exactly those (a stranger's file, even one named like a sample, is kept)."""
+    spec, out = copy_of(library, tmp_path)
+    stranger = out / "rig_099_Ds7_v100_rr01.wav"  # sample-shaped, but in no manifest
+    stranger.write_bytes(b"not ours")
+    (out / "notes.txt").write_text("keep me")
+    smaller = write(spec.parent, "smaller.yaml", SPEC.replace("[A3, C4, E4]", "[A3, C4]"))
+    stale = sorted(name for name in wavs(out) if "_064_E4_" in name)
+    assert len(stale) == 4
+    assert main(["batch", str(smaller), "--output", str(out), "--workers", "1"]) == 0
+    err = capsys.readouterr().err
+    assert f"{len(stale)} files in {out} from the previous spec are no longer produced (--prune deletes them)" in err
+    assert all((out / name).exists() for name in stale)
+    assert main(["batch", str(smaller), "--output", str(out), "--workers", "1", "--prune"]) == 0
+    captured = capsys.readouterr()
+    assert f"pruned {len(stale)} stale files" in captured.out and "no longer produced" not in captured.err
+    assert not any((out / name).exists() for name in stale)
+    assert stranger.read_bytes() == b"not ours" and (out / "notes.txt").exists()
+    assert len(wavs(out)) == 8 + 1
+
+
+def test_patch_without_dampers_is_one_shot(tmp_path):
+    """release_t60: null -- the object has no dampers: the SFZ plays each sample to its end at key-up."""
+    spec = make_spec(tmp_path, SPEC.replace("round_robin: 2", "round_robin: 1"),
+                     RIG.replace("high_frequency: 3 kHz", "high_frequency: 3 kHz\n  release_t60: null"))
+    assert build_library(spec, workers=1, progress=False).exit_status == 0
+    glob, regions = parse_sfz((tmp_path / "lib" / "rig.sfz").read_text(encoding="utf-8"))
+    assert glob == {"amp_veltrack": "0", "loop_mode": "one_shot"} and len(regions) == 6
+
+
+def test_every_file_carries_its_root_note(library):
+    """smpl / inst of every sample, parsed here with struct: the take's pitch and the SFZ's key and layer ranges."""
+    import struct
+
+    folder, _, _ = library
+    manifest = manifest_of(folder / "lib")
+    glob, regions = parse_sfz((folder / "lib" / "rig.sfz").read_text(encoding="utf-8"))
+    ranges = {r["sample"]: r for r in regions}
+    for entry in manifest["files"]:
+        raw = (folder / "lib" / entry["file"]).read_bytes()
+        offset, chunks = 12, {}
+        while offset < len(raw):
+            size = struct.unpack_from("<I", raw, offset + 4)[0]
+            chunks[raw[offset:offset + 4]] = raw[offset + 8 : offset + 8 + size]
+            offset += 8 + size + (size & 1)
+        _, _, period, unity, fraction = struct.unpack("<9I", chunks[b"smpl"])[:5]
+        pitch = unity + fraction / 2**32  # semitones
+        assert period == 10**9 // 16000
+        assert pitch == pytest.approx(entry["midi"] + entry["detune_cents"] / 100.0, abs=1e-6)
+        note, fine, _, low, high, low_vel, high_vel = struct.unpack("<BbbBBBB", chunks[b"inst"][:7])
+        assert note == round(pitch) and fine == round((note - pitch) * 100)
+        region = ranges[entry["file"]]
+        assert (low, high, low_vel, high_vel) == tuple(int(region[k]) for k in ("lokey", "hikey", "lovel", "hivel"))

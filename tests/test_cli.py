@@ -145,9 +145,11 @@ def test_python_api_without_files():
     patch = synth.patch_from_text(PATCHES[0].read_text())
     table = synth.partial_table(patch)
     assert isinstance(table, synth.PartialTable)
-    signal, _ = synth.render_patch(synth.retune(patch, 220.0), table=None)
+    tuned = synth.retune(patch, 220.0)
+    signal, table = synth.render_patch(tuned, table=None)
     assert signal.dtype == np.float32
-    assert len(signal) == round(patch.render.duration * patch.render.sample_rate)
+    assert patch.render.duration == "auto" and signal[0] == 0.0
+    assert len(signal) == synth.patch_ending(tuned, table).n_samples
     assert synth.partial_table(synth.retune(patch, 220.0)).fundamental_hz == pytest.approx(220.0, rel=1e-10)
 
 

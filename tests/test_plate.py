@@ -576,6 +576,7 @@ excitation:
   contact_time: 0.3 ms
 pickup:
   position: {pick}
+  measures: displacement   # the fundamental the loudest: a clean decay to fit
 damping:
   t60: 1.2 s
   t60_high: 0.4 s
