@@ -118,11 +118,32 @@ def _scratch_float64(shape):
     return buf[:size].reshape(shape)
 
 
-def quantise(signal, bit_depth, *, seed=DITHER_SEED):
+QUIET_TAIL_S = 0.010  # s: a 16-bit file's last 10 ms carry no dither (digital silence where the sound has ended)
+
+
+def dither_gain(n, *, sample_rate, frames_after=0):
+    """Gain of the 16-bit dither over `n` frames followed by `frames_after` more of the file; None if all 1.
+
+    The dither is off over the file's last :data:`QUIET_TAIL_S` and rises as
+    a raised cosine over the same length before that, so a file whose sound
+    has fallen below half an LSB ends in exact digital silence (common
+    practice in dithering: silence is not dithered) instead of +-1 LSB of
+    noise, -89 dB re a -1 dBFS peak.
+    """
+    quiet = max(int(round(QUIET_TAIL_S * sample_rate)), 1)
+    if frames_after >= 2 * quiet:
+        return None
+    to_end = np.arange(n, 0, -1, dtype=np.float64) + frames_after  # frames from each one to the end, >= 1
+    rise = np.clip((to_end - quiet) / quiet, 0.0, 1.0)
+    return 0.5 - 0.5 * np.cos(np.pi * rise)
+
+
+def quantise(signal, bit_depth, *, seed=DITHER_SEED, dither=None):
     """The samples to write for `bit_depth`: int16 (TPDF-dithered), int32 or float32.
 
     24-bit samples are returned as int32 with the 24 significant bits at the top,
-    as soundfile expects for PCM_24.
+    as soundfile expects for PCM_24.  `dither` (16-bit only) scales the TPDF
+    dither frame by frame (:func:`dither_gain`); None keeps it whole.
     """
     if bit_depth == 32:
         return np.asarray(signal, dtype=np.float32)
@@ -130,6 +151,8 @@ def quantise(signal, bit_depth, *, seed=DITHER_SEED):
         rng = np.random.default_rng(seed)
         shape = np.shape(signal)
         tpdf = rng.random(shape) - rng.random(shape)  # triangular, +-1 LSB
+        if dither is not None:
+            tpdf *= dither if tpdf.ndim == 1 else dither[:, None]
         values = np.round(np.asarray(signal, dtype=np.float64) * 32767.0 + tpdf)
         return np.clip(values, -32768, 32767).astype(np.int16)
     if bit_depth == 24:
@@ -334,7 +357,7 @@ def write_audio(path, signal, *, sample_rate, bit_depth, seed=DITHER_SEED, key=N
         A whole number (a float such as 44100.0 is fine).
     bit_depth : {16, 24, 32}
     seed : int
-        Seed of the 16-bit TPDF dither.
+        Seed of the 16-bit TPDF dither (off over the last 10 ms, :func:`dither_gain`).
     key : str or None
         The option that named `path`, for the error if it cannot be written
         (see :class:`atomic_output`).
@@ -364,7 +387,7 @@ def write_audio(path, signal, *, sample_rate, bit_depth, seed=DITHER_SEED, key=N
 
     fmt = check_output_path(path, bit_depth)
     rate = whole_sample_rate(sample_rate)
-    data = quantise(signal, bit_depth, seed=seed)
+    data = quantise(signal, bit_depth, seed=seed, dither=dither_gain(np.shape(signal)[0], sample_rate=rate))
     frames = data.shape[0]
     channels = 1 if data.ndim == 1 else data.shape[1]
     with atomic_output(path, key=key) as tmp:

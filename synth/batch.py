@@ -49,7 +49,7 @@ from pathlib import Path
 
 import numpy as np
 
-from .audio import atomic_output, encode_wav, normalise, peak_dbfs, quantise, sampler_fields
+from .audio import atomic_output, dither_gain, encode_wav, normalise, peak_dbfs, quantise, sampler_fields
 from .damping import LN1000
 from .engine import render_modes
 from .errors import ModalError, PatchError, RenderError
@@ -70,7 +70,7 @@ from .library import (
     patch_fingerprint,
 )
 from .solvecache import SolveCache
-from .tone import CUT_DB, Tone, plan_ending, render_tone
+from .tone import CUT_DB, END_DB, Tone, end_target_db, plan_ending, render_tone
 from .pipeline import partial_table
 
 __all__ = ["LibraryResult", "build_library", "summary_lines", "default_workers", "PEAK_PREFIX_S"]
@@ -106,7 +106,8 @@ class RenderRequest:
 
     duration : float or "auto", s; sample_rate : int, Hz; bit_depth : int;
     absolute : bool (``peak_db: null``); peak : {"true", "sample"} (what the
-    gain normalises); release_t60 : float or None, s.
+    gain normalises); release_t60 : float or None, s; end_db : float (dB re
+    the peak a file ends below, :func:`synth.tone.end_target_db`).
     """
 
     duration: object
@@ -115,12 +116,18 @@ class RenderRequest:
     absolute: bool
     peak: str
     release_t60: object
+    end_db: float = END_DB
 
     @classmethod
     def of(cls, patch):
         render = patch.render
         return cls(render.duration, render.sample_rate, render.bit_depth, render.peak_db is None, render.peak,
-                   patch.damping.release_t60)
+                   patch.damping.release_t60, end_target_db(render.bit_depth, render.peak_db))
+
+    def ending(self, tone):
+        """How the file of `tone` ends (:func:`synth.tone.plan_ending`)."""
+        return plan_ending(tone, duration=self.duration, sample_rate=self.sample_rate,
+                           release_t60=self.release_t60, end_db=self.end_db)
 
 
 def _audible(table):
@@ -149,8 +156,7 @@ def _peak_of(tone, request):
     until the decay bound ``sum |a| exp(-ln(1000) t / T60)``, which no later
     sample can exceed, falls below the peak found (see the module notes).
     """
-    ending = plan_ending(tone, duration=request.duration, sample_rate=request.sample_rate,
-                         release_t60=request.release_t60)
+    ending = request.ending(tone)
     measure = _peak_measure(request.peak)
     rate, total = request.sample_rate, ending.n_samples
     amplitude, t60 = np.abs(tone.amplitude), tone.t60_s
@@ -187,7 +193,7 @@ def _render_sample(arrays, request, gain, seed, target=None, sampler=None):
 
     tone = _tone(arrays)
     rate, bit_depth = request.sample_rate, request.bit_depth
-    ending = plan_ending(tone, duration=request.duration, sample_rate=rate, release_t60=request.release_t60)
+    ending = request.ending(tone)
     n = ending.n_samples
     signal = render_tone(tone, n, rate, damper=ending.damper, release_t60=request.release_t60, fade=ending.fade,
                          out=_reused("signal", n, np.float32))
@@ -195,7 +201,7 @@ def _render_sample(arrays, request, gain, seed, target=None, sampler=None):
     np.multiply(signal, gain, out=scaled, dtype=np.float64)
     if request.absolute:
         normalise(scaled, peak_db=None, bit_depth=bit_depth)  # raises RenderError if it would clip
-    data = quantise(scaled, bit_depth, seed=seed)
+    data = quantise(scaled, bit_depth, seed=seed, dither=dither_gain(n, sample_rate=rate))
     loudness, note = loudness_lufs(scaled, rate)
     result = {"peak_dbfs": peak_dbfs(scaled), "true_peak_dbtp": true_peak_dbtp(scaled, rate),
               "loudness_lufs": loudness, "loudness_note": note, "duration_s": n / rate,

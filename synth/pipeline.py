@@ -19,7 +19,7 @@ from .modes import NODE_TOLERANCE, PartialTable, frozen_array
 from .patch import MAX_SAMPLE_RATE
 from .resonators import UnreachablePitch, resonator_name
 from .solvecache import DEFAULT_CACHE
-from .tone import Tone, plan_ending, render_tone
+from .tone import Tone, end_target_db, plan_ending, render_tone
 
 __all__ = ["mode_set", "partial_table", "render_patch", "patch_ending", "Unweighted", "unweighted_partials", "weigh"]
 
@@ -251,8 +251,9 @@ def _pitch_key(patch):
 
 def patch_ending(patch, table):
     """How `patch`'s file ends (:func:`synth.tone.plan_ending`): its length, a damper or a fade."""
-    return plan_ending(Tone.from_table(table), duration=patch.render.duration, sample_rate=patch.render.sample_rate,
-                       release_t60=patch.damping.release_t60)
+    render = patch.render
+    return plan_ending(Tone.from_table(table), duration=render.duration, sample_rate=render.sample_rate,
+                       release_t60=patch.damping.release_t60, end_db=end_target_db(render.bit_depth, render.peak_db))
 
 
 def render_patch(patch, *, table=None, ending=None):

@@ -36,6 +36,7 @@ __all__ = [
     "Tone",
     "Ending",
     "END_DB",
+    "end_target_db",
     "CUT_DB",
     "AUTO_CAP_S",
     "FADE_S",
@@ -251,7 +252,21 @@ def peak_lower_bound(tone, sample_rate):
     return float(np.max(np.abs(render_tone(tone, n, sample_rate))))
 
 
-def plan_ending(tone, *, duration, sample_rate, release_t60, peak=None):
+def end_target_db(bit_depth, peak_db):
+    """dB re the peak that a file's last 10 ms stay below: :data:`END_DB`, lower for 16-bit files.
+
+    At 16 bits, -90 dB re a -1 dBFS peak is 0.9 LSB: such a tail would be
+    written as +-1 LSB.  The target is lowered to 0.45 LSB at the peak
+    `peak_db` (-95.6 dB re a -1 dBFS peak), below which the undithered tail
+    (:func:`synth.audio.dither_gain`) rounds to exact silence.  Without a
+    peak target (absolute scale) it stays :data:`END_DB`.
+    """
+    if bit_depth != 16 or peak_db is None:
+        return END_DB
+    return min(END_DB, 20.0 * math.log10(0.45 / 32767.0) - float(peak_db))
+
+
+def plan_ending(tone, *, duration, sample_rate, release_t60, peak=None, end_db=END_DB):
     """How the file of `tone` ends: its length, and a damper or a fade where a fixed duration cuts it.
 
     Parameters
@@ -263,6 +278,8 @@ def plan_ending(tone, *, duration, sample_rate, release_t60, peak=None):
         The patch's damper (None: it has none).
     peak : float or None
         The file's peak if known (else :func:`peak_lower_bound`).
+    end_db : float, dB re the peak
+        The level the last 10 ms stay below (:func:`end_target_db`).
 
     Returns
     -------
@@ -274,7 +291,7 @@ def plan_ending(tone, *, duration, sample_rate, release_t60, peak=None):
     if peak <= 0.0 or amp.size == 0:
         n = int(round(AUTO_CAP_S * sample_rate)) if duration == "auto" else int(round(duration * sample_rate))
         return Ending(max(n, 1))
-    end_level = 10.0 ** (END_DB / 20.0) * peak
+    end_level = 10.0 ** (end_db / 20.0) * peak
     n_on = tone.onset.size
     window = int(round(END_WINDOW_S * sample_rate))
 
@@ -289,9 +306,9 @@ def plan_ending(tone, *, duration, sample_rate, release_t60, peak=None):
             return Ending(cap, capped=True, end_db=bound_db(cap))
         return Ending(max(int(n), 1), end_db=bound_db(n))
     n = max(int(round(duration * sample_rate)), 1)
-    last = max(n - window, 0)  # the start of the last 10 ms: the level that must be below END_DB
+    last = max(n - window, 0)  # the start of the last 10 ms: the level that must be below end_db
     cut = bound_db(last)
-    if cut <= END_DB:
+    if cut <= end_db:
         return Ending(n, end_db=cut)
     if release_t60 is None:
         return Ending(n, fade=min(n, max(1, int(round(FADE_S * sample_rate)))), cut_db=cut, end_db=-math.inf)

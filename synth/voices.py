@@ -32,6 +32,7 @@ from .audio import (
     SUBTYPES,
     atomic_output,
     check_output_path,
+    dither_gain,
     normalise,
     quantise,
     whole_sample_rate,
@@ -381,9 +382,12 @@ def write_song(path, buffer, *, sample_rate, bit_depth, peak_db, peak="true", ke
     with atomic_output(path, key=key) as tmp:
         with soundfile.SoundFile(str(tmp), "w", samplerate=rate, channels=channels,
                                  subtype=SUBTYPES[bit_depth], format=fmt) as handle:
-            for k, start in enumerate(range(0, buffer.shape[0], WRITE_CHUNK_FRAMES)):
+            total = buffer.shape[0]
+            for k, start in enumerate(range(0, total, WRITE_CHUNK_FRAMES)):
                 seed = DITHER_SEED if k == 0 else (DITHER_SEED, k)
-                handle.write(quantise(buffer[start : start + WRITE_CHUNK_FRAMES], bit_depth, seed=seed))
+                chunk = buffer[start : start + WRITE_CHUNK_FRAMES]
+                dither = dither_gain(chunk.shape[0], sample_rate=rate, frames_after=total - start - chunk.shape[0])
+                handle.write(quantise(chunk, bit_depth, seed=seed, dither=dither))
         if fmt == "WAV" and bit_depth == 32:
             zero_peak_timestamp(tmp)  # libsndfile's PEAK chunk carries a wall-clock time
     scale = 10.0 ** (gain_db / 20.0)

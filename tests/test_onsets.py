@@ -173,6 +173,33 @@ def test_every_file_ends_below_minus_90_db(write_patch, tmp_path, capsys, durati
         assert "would cut the sound at" in captured.err and "the damper falls at" in captured.err
 
 
+@pytest.mark.parametrize("duration", ["auto", "0.6 s"])
+def test_16_bit_files_end_in_digital_silence(write_patch, tmp_path, capsys, duration):
+    """At 16 bits -90 dB re a -1 dBFS peak is 0.9 LSB (20 log10(32767 x 10^(-91/20)) = -0.9 dB re 1 LSB):
+    the tail is rendered down to 0.45 LSB and its last 10 ms carry no dither, so they are exact zeros,
+    while the dither is whole earlier on (half the samples of a quiet stretch are off zero)."""
+    text = STRING.format(kind="pluck", measures="", duration=duration).replace("bit_depth: 24", "bit_depth: 16")
+    _, out, _ = _render(write_patch, tmp_path, capsys, text)
+    raw = out.read_bytes()
+    samples = np.frombuffer(_chunks(raw)[b"data"], dtype="<i2")
+    rate = struct.unpack_from("<I", raw, 24)[0]
+    assert np.all(samples[-rate // 100 :] == 0)
+    middle = samples[samples.size // 2 : samples.size // 2 + rate // 100]
+    assert np.count_nonzero(middle) > 0.4 * middle.size
+
+
+def test_dither_gain_is_off_over_the_last_10_ms():
+    from synth.audio import dither_gain
+
+    assert dither_gain(1000, sample_rate=8000, frames_after=160) is None  # 20 ms or more from the end: whole
+    gain = dither_gain(400, sample_rate=8000)  # 10 ms = 80 frames
+    np.testing.assert_array_equal(gain[-80:], 0.0)
+    np.testing.assert_array_equal(gain[:240], 1.0)
+    assert np.all(np.diff(gain[240:320]) <= 0) and 0.0 < gain[280] < 1.0
+    # A chunk of a longer file reads the same gains as the whole.
+    np.testing.assert_array_equal(dither_gain(100, sample_rate=8000, frames_after=50), gain[250:350])
+
+
 def test_sampler_chunks_name_the_note(write_patch, tmp_path, capsys):
     _, out, _ = _render(write_patch, tmp_path, capsys, STRING.format(kind="pluck", measures="", duration="0.3 s"))
     chunks = _chunks(out.read_bytes())
