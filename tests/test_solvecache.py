@@ -68,8 +68,12 @@ def test_golden_modes_are_kept(case):
         return
     for key in ("frequency_hz", "t60_s"):
         # Floating-point rounding only: 1e-13 relative; circular plates 1e-12 (their
-        # roots are now found by another bracketing method).
+        # roots are now found by another bracketing method); shaped bars 1e-8 (2e-5 cent):
+        # their finite-element eigenproblem goes through LAPACK, whose results move by
+        # ~5e-10 between BLAS builds and CPU kernels (seen on two machines of this kind).
         tolerance = 1e-12 if case["patch"].startswith("plate") else 1e-13
+        if case["resonator"] == "bar" and "undercut" in case["patch"]:
+            tolerance = 1e-8
         np.testing.assert_allclose(new[key], case[key], rtol=tolerance, atol=0, err_msg=key)
 
 
