@@ -124,10 +124,14 @@ class RenderRequest:
         return cls(render.duration, render.sample_rate, render.bit_depth, render.peak_db is None, render.peak,
                    patch.damping.release_t60, end_target_db(render.bit_depth, render.peak_db))
 
-    def ending(self, tone):
-        """How the file of `tone` ends (:func:`synth.tone.plan_ending`)."""
+    def ending(self, tone, gain=None):
+        """How the file of `tone` ends (:func:`synth.tone.plan_ending`); with the library `gain`, the
+        integer formats' rounding is allowed for, so a soft sample ends below the target too."""
+        floor = 0.0
+        if gain is not None and gain > 0 and self.bit_depth in (16, 24):
+            floor = 0.5 / (32767.0 if self.bit_depth == 16 else 8388607.0) / gain  # half an LSB, in tone units
         return plan_ending(tone, duration=self.duration, sample_rate=self.sample_rate,
-                           release_t60=self.release_t60, end_db=self.end_db)
+                           release_t60=self.release_t60, end_db=self.end_db, floor=floor)
 
 
 def _audible(table):
@@ -193,7 +197,7 @@ def _render_sample(arrays, request, gain, seed, target=None, sampler=None):
 
     tone = _tone(arrays)
     rate, bit_depth = request.sample_rate, request.bit_depth
-    ending = request.ending(tone)
+    ending = request.ending(tone, gain)
     n = ending.n_samples
     signal = render_tone(tone, n, rate, damper=ending.damper, release_t60=request.release_t60, fade=ending.fade,
                          out=_reused("signal", n, np.float32))

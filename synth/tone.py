@@ -266,7 +266,7 @@ def end_target_db(bit_depth, peak_db):
     return min(END_DB, 20.0 * math.log10(0.45 / 32767.0) - float(peak_db))
 
 
-def plan_ending(tone, *, duration, sample_rate, release_t60, peak=None, end_db=END_DB):
+def plan_ending(tone, *, duration, sample_rate, release_t60, peak=None, end_db=END_DB, floor=0.0):
     """How the file of `tone` ends: its length, and a damper or a fade where a fixed duration cuts it.
 
     Parameters
@@ -280,6 +280,11 @@ def plan_ending(tone, *, duration, sample_rate, release_t60, peak=None, end_db=E
         The file's peak if known (else :func:`peak_lower_bound`).
     end_db : float, dB re the peak
         The level the last 10 ms stay below (:func:`end_target_db`).
+    floor : float >= 0
+        The largest error writing adds to a sample (half an LSB), in the
+        tone's units: the sound is ended that much lower, or below it (so the
+        tail rounds to exact zero) when the target is within two of it.  A
+        soft sample of a library, far below full scale, needs it.
 
     Returns
     -------
@@ -292,6 +297,8 @@ def plan_ending(tone, *, duration, sample_rate, release_t60, peak=None, end_db=E
         n = int(round(AUTO_CAP_S * sample_rate)) if duration == "auto" else int(round(duration * sample_rate))
         return Ending(max(n, 1))
     end_level = 10.0 ** (end_db / 20.0) * peak
+    if floor > 0.0:
+        end_level = end_level - floor if end_level > 2.0 * floor else 0.999 * floor
     n_on = tone.onset.size
     window = int(round(END_WINDOW_S * sample_rate))
 

@@ -173,6 +173,22 @@ def test_every_file_ends_below_minus_90_db(write_patch, tmp_path, capsys, durati
         assert "would cut the sound at" in captured.err and "the damper falls at" in captured.err
 
 
+@pytest.mark.parametrize("bits", [16, 24])
+def test_soft_library_samples_end_below_minus_90_db_of_their_own_peak(write_patch, tmp_path, capsys, bits):
+    """A library's soft layer sits far below full scale (one gain for all), where half an LSB of
+    rounding is no longer small against -90 dB of the file's own peak: the ending allows for it."""
+    patch = write_patch(STRING.format(kind="pluck", measures="", duration="auto").replace("bit_depth: 24",
+                                                                                         f"bit_depth: {bits}"))
+    spec = tmp_path / "lib.yaml"
+    spec.write_text(f"patch: {patch.name}\nnotes: [G3]\nvelocities: [1, 127]\noutput: lib\n", encoding="utf-8")
+    status, _, err = run(capsys, "batch", spec, "--workers", "1")
+    assert status == 0, err
+    for path in sorted((tmp_path / "lib").glob("*.wav")):
+        signal, rate = read_wav(path)
+        peak = np.max(np.abs(signal))
+        assert 20 * np.log10(max(np.max(np.abs(signal[-rate // 100 :])), 1e-12) / peak) < -90.0, path.name
+
+
 @pytest.mark.parametrize("duration", ["auto", "0.6 s"])
 def test_16_bit_files_end_in_digital_silence(write_patch, tmp_path, capsys, duration):
     """At 16 bits -90 dB re a -1 dBFS peak is 0.9 LSB (20 log10(32767 x 10^(-91/20)) = -0.9 dB re 1 LSB):
