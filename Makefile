@@ -20,7 +20,9 @@ demo: $(STAMP)
 		$(BIN)/synth render "$$patch" --quiet || exit 1; \
 	done
 	@$(BIN)/synth midi patches/midi/demo-song.mid --map patches/midi/demo-map.yaml -o renders/demo-song.wav --quiet
+	@$(BIN)/synth midi patches/midi/demo-song.mid --map patches/midi/instrument-map.yaml -o renders/demo-song-instruments.wav --quiet
 	@$(BIN)/synth batch patches/library/demo-library.yaml
+	@$(BIN)/synth batch patches/library/dulcimer-library.yaml
 
 test: $(STAMP)
 	$(BIN)/python -m pytest -q

@@ -36,6 +36,7 @@ How a run goes
 """
 from __future__ import annotations
 
+import dataclasses
 import itertools
 import math
 import os
@@ -51,7 +52,6 @@ import numpy as np
 
 from .audio import atomic_output, dither_gain, encode_wav, normalise, peak_dbfs, quantise, sampler_fields
 from .damping import LN1000
-from .engine import render_modes
 from .errors import ModalError, PatchError, RenderError
 from .executors import Inline as _Inline
 from .executors import backend, default_workers
@@ -241,6 +241,7 @@ def _reused(name, size, dtype):
 def _one(kind, request, item):
     """("ok", value) or ("error", message) of one job of a task -- never raises."""
     try:
+        request = item[-1] if isinstance(item[-1], RenderRequest) else request  # a key's own damper
         if kind == "peak":
             return "ok", _peak_of(_tone(item[1]), request)
         return "ok", _render_sample(item[1], request, item[2], item[3], item[4], item[5])
@@ -406,6 +407,14 @@ class _Run:
             self.failed[job.index] = str(error)
             return None
 
+    def own_request(self, job):
+        """() or (the job's own RenderRequest,): an instrument whose dampers vary by key."""
+        release_at = getattr(self.spec.patch, "release_t60_at", None)
+        if release_at is None:
+            return ()
+        release = release_at(job.midi)
+        return () if release == self.settings.release_t60 else (dataclasses.replace(self.settings, release_t60=release),)
+
     # -- the one gain ------------------------------------------------------
 
     def recorded_gain(self):
@@ -424,7 +433,7 @@ class _Run:
             for job in self.jobs:
                 table = self.table(job)
                 if table is not None:
-                    yield job.index, _audible(table)
+                    yield (job.index, _audible(table)) + self.own_request(job)
 
         for batch in _batches(items(), self.batch_size):
             self.task_jobs.append([item[0] for item in batch])
@@ -501,7 +510,8 @@ class _Run:
                     continue
                 self.pending[job.index] = (float(table.fundamental_hz), partials_dict(table))
                 target = (str(self.folder), job.file) if self.local else None
-                yield job.index, _audible(table), self.gain, dither_seed(job), target, self.sampler_fields(job)
+                yield (job.index, _audible(table), self.gain, dither_seed(job), target,
+                       self.sampler_fields(job)) + self.own_request(job)
 
         for batch in _batches(items(), self.batch_size):
             self.task_jobs.append([item[0] for item in batch])

@@ -49,6 +49,32 @@ def _overrides(args):
     return overrides
 
 
+def _load_key(args):
+    """(patch, output stem) of ``args.patch``: a patch file (``--pitch`` retunes it) or one key of an instrument file."""
+    from .instrument_file import instrument_from_mapping, is_instrument_mapping, key_of
+    from .units import midi_to_note
+    from .patch import patch_from_mapping
+    from .yamlio import load_yaml_file
+
+    overrides = _overrides(args)
+    mapping = load_yaml_file(args.patch)
+    if not is_instrument_mapping(mapping):
+        patch = patch_from_mapping(mapping, file=str(args.patch), overrides=overrides)
+        return patch, patch.name
+    pitch = overrides.pop("resonator.pitch", None)
+    instrument = instrument_from_mapping(mapping, file=str(args.patch), overrides=overrides)
+    if pitch is None:
+        raise option_error(f"{args.patch} is an instrument of the keys {instrument.range_text}: "
+                           "give --pitch KEY (a note name such as C4)", "--pitch")
+    try:
+        midi = key_of(pitch[0])
+    except ValueError as error:
+        raise option_error(f"{error} (an instrument plays its keys {instrument.range_text})", "--pitch") from None
+    if not instrument.contains(midi):
+        raise option_error(f"key {pitch[0]} is outside the instrument's range {instrument.range_text}", "--pitch")
+    return instrument.key_patch(midi), f"{instrument.name}-{midi_to_note(midi).replace('#', 's')}"
+
+
 def _warn(messages):
     for message in messages:
         print(f"synth: warning: {message}", file=sys.stderr)
@@ -67,13 +93,12 @@ def _check_rows(rows):
 def cmd_modes(args):
     from .audio import atomic_output, check_output_file
     from .modes import table_to_csv, table_to_json, table_to_text
-    from .patch import load_patch
     from .pipeline import partial_table
 
     _check_rows(args.rows)
     if args.csv:
         check_output_file(args.csv, suffixes=(".csv",), inputs=(args.patch,), key="--csv")
-    patch = load_patch(args.patch, overrides=_overrides(args))
+    patch, _ = _load_key(args)
     table = partial_table(patch)
     if args.csv:
         with atomic_output(Path(args.csv), key="--csv") as tmp:
@@ -91,15 +116,14 @@ def cmd_render(args):
     from .audio import check_output_path, make_output_folder, normalise, peak_dbfs, sampler_fields, write_audio
     from .library import loudness_lufs
     from .modes import table_to_text
-    from .patch import load_patch
     from .pipeline import partial_table, patch_ending, render_patch
     from .truepeak import true_peak_dbtp
     from .units import hz_to_midi
 
     _check_rows(args.rows)
-    patch = load_patch(args.patch, overrides=_overrides(args))
+    patch, stem = _load_key(args)
     bits, rate = patch.render.bit_depth, patch.render.sample_rate
-    out = Path(args.output) if args.output else DEFAULT_OUTPUT_DIR / f"{patch.name}.wav"
+    out = Path(args.output) if args.output else DEFAULT_OUTPUT_DIR / f"{stem}.wav"
     check_output_path(out, bits, inputs=(args.patch,), make_folder=not args.output)
     table = partial_table(patch)
     ending = patch_ending(patch, table)
@@ -218,6 +242,31 @@ def cmd_tune_bar(args):
     return 0
 
 
+def cmd_range(args):
+    from .audio import atomic_output, check_output_file
+    from .instrument_file import instrument_from_mapping, is_instrument_mapping
+    from .keyrange import range_rows, range_to_csv, range_to_json, range_to_text
+    from .yamlio import load_yaml_file
+
+    if args.csv:
+        check_output_file(args.csv, suffixes=(".csv",), inputs=(args.instrument,), key="--csv")
+    mapping = load_yaml_file(args.instrument)
+    if not is_instrument_mapping(mapping):
+        from .errors import PatchError
+
+        raise PatchError("is a patch, not an instrument (an instrument file has a range: {from: NOTE, to: NOTE}); "
+                         "synth modes shows a patch", file=args.instrument, line=1)
+    instrument = instrument_from_mapping(mapping, file=str(args.instrument), overrides=_overrides(args))
+    rows = range_rows(instrument)
+    if args.csv:
+        with atomic_output(Path(args.csv), key="--csv") as tmp:
+            tmp.write_text(range_to_csv(instrument, rows), encoding="utf-8")
+    print(range_to_json(instrument, rows) if args.json else range_to_text(instrument, rows))
+    if args.csv and not args.json:
+        print(f"wrote {args.csv}")
+    return 0
+
+
 class _Parser(argparse.ArgumentParser):
     """argparse with one-line errors (exit status 2), like every other synth error."""
 
@@ -234,8 +283,9 @@ def build_parser():
     commands = parser.add_subparsers(dest="command", required=True, metavar="COMMAND", parser_class=_Parser)
 
     def patch_options(p):
-        p.add_argument("patch", help="patch file (YAML)")
-        p.add_argument("--pitch", help="override the pitch (note name such as A2, or '110 Hz'); retunes the object")
+        p.add_argument("patch", help="patch or instrument file (YAML)")
+        p.add_argument("--pitch", help="override the pitch (note name such as A2, or '110 Hz'); retunes the object; "
+                                       "for an instrument, the key to show or render")
         p.add_argument("--sample-rate", dest="sample_rate", help="override render.sample_rate (Hz)")
         p.add_argument("--max-modes", dest="max_modes", help="override render.max_modes")
 
@@ -245,6 +295,14 @@ def build_parser():
     modes.add_argument("--csv", metavar="FILE", help="also write the table as CSV to FILE")
     modes.add_argument("--rows", type=int, default=None, help="show only the first ROWS modes of the text table")
     modes.set_defaults(func=cmd_modes)
+
+    keyrange = commands.add_parser("range", help="print an instrument's keys as designed: pitch, sizes, stress, T60, ratios")
+    keyrange.add_argument("instrument", help="instrument file (YAML)")
+    keyrange.add_argument("--json", action="store_true", help="print the table as one JSON object")
+    keyrange.add_argument("--csv", metavar="FILE", help="also write the table as CSV to FILE")
+    keyrange.add_argument("--sample-rate", dest="sample_rate", help="override render.sample_rate (Hz)")
+    keyrange.add_argument("--max-modes", dest="max_modes", help="override render.max_modes")
+    keyrange.set_defaults(func=cmd_range)
 
     render = commands.add_parser("render", help="render a patch to a WAV (or FLAC) file")
     patch_options(render)
@@ -258,7 +316,7 @@ def build_parser():
     midi = commands.add_parser("midi", help="render a MIDI file (format 0 or 1) through a patch or a channel map")
     midi.add_argument("song", help="MIDI file (.mid)")
     source = midi.add_mutually_exclusive_group(required=True)
-    source.add_argument("--patch", help="patch file (YAML) that plays every channel")
+    source.add_argument("--patch", help="patch or instrument file (YAML) that plays every channel")
     source.add_argument("--map", help="map file (YAML): MIDI channel 1-16 or track -> patch, gain, pan")
     midi.add_argument("-o", "--output", help="output file (.wav or .flac); default renders/<song>.wav")
     midi.add_argument("--a4", help="tuning: frequency of A4 (default 440 Hz; e.g. 442 or '415 Hz')")
@@ -269,7 +327,7 @@ def build_parser():
     midi.set_defaults(func=cmd_midi)
 
     batch = commands.add_parser("batch", help="render a sample library: every note x velocity x round robin of a spec")
-    batch.add_argument("spec", help="library spec (YAML): patch, notes, velocities, round_robin, variation, output")
+    batch.add_argument("spec", help="library spec (YAML): patch (or instrument), notes, velocities, round_robin, variation, output")
     batch.add_argument("--workers", type=int, help="local processes (default: every core; 1 renders in this process)")
     batch.add_argument("--scheduler", metavar="ADDRESS", help="run the jobs on a Dask cluster, e.g. tcp://host:8786 (pip install '.[cluster]')")
     batch.add_argument("-o", "--output", metavar="DIR", help="output folder (overrides the spec's output)")

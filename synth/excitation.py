@@ -225,7 +225,8 @@ def onset_samples(pulse, coefficient, s, *, measures, reference_omega, sample_ra
     ----------
     pulse : Pulse
     coefficient : ndarray [shape=(M,)]
-        The modes' ``c`` (:func:`drive_coefficients`).
+        The modes' ``c`` (:func:`drive_coefficients`); complex for coupled
+        sub-modes, whose ``c`` carries the mixing weight.
     s : ndarray [shape=(M,)], 1/s
         ``-sigma + i omega`` of each mode.
     measures : {"displacement", "velocity", "acceleration"}
@@ -251,13 +252,16 @@ def onset_samples(pulse, coefficient, s, *, measures, reference_omega, sample_ra
         return out
     k = _measure_power(measures)
     s = np.asarray(s, dtype=complex)
-    weight = np.asarray(coefficient, dtype=float) * (s / reference_omega) ** k
+    coefficient = np.asarray(coefficient)  # real, or complex for coupled sub-modes (synth.coupling)
+    weight = coefficient * (s / reference_omega) ** k
     for start in range(0, n, ONSET_BLOCK):
         t = np.arange(start, min(start + ONSET_BLOCK, n))[:, None] / sample_rate
         values = np.imag(weight[None, :] * np.exp(s[None, :] * t) * pulse.partial(s[None, :], t))
         y = values.sum(axis=1)
+        if k == 1 and np.iscomplexobj(coefficient):  # h(0) = Im[sum c]: 0 for real c, ~0 for coupled sub-modes
+            y += pulse.force(t[:, 0]) * float(np.sum(np.imag(coefficient))) / reference_omega
         if k == 2:
-            y += pulse.force(t[:, 0]) * float(np.sum(coefficient * s.imag)) / reference_omega**2
+            y += pulse.force(t[:, 0]) * float(np.sum(np.imag(coefficient * s))) / reference_omega**2
         if k == 0 and pulse.kind == "pluck":
             y += float(np.sum(-np.imag(coefficient / s)))
         out[start : start + t.shape[0]] = y

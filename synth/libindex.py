@@ -95,6 +95,11 @@ def velocity_ranges(velocities):
     return ranges
 
 
+def _key_up(release_t60):
+    """The opcode of a key-up: the damper's fade, or a one-shot sample when there are no dampers."""
+    return "loop_mode=one_shot" if release_t60 is None else f"ampeg_release={release_t60:g}"
+
+
 def sfz_text(name, entries, *, comment_lines=(), release_t60=None):
     """An SFZ file mapping `entries` (manifest entries) onto keys and velocities.
 
@@ -103,7 +108,9 @@ def sfz_text(name, entries, *, comment_lines=(), release_t60=None):
     ``sample`` and ``seq_position``.  ``amp_veltrack=0``: the samples already
     carry their dynamics, so the sampler must not scale them by velocity again.
     Key-up: ``ampeg_release=<release_t60>`` (seconds), or
-    ``loop_mode=one_shot`` when `release_t60` is None (no dampers).
+    ``loop_mode=one_shot`` when `release_t60` is None (no dampers); a dict
+    {MIDI key: release_t60} (an instrument whose dampers vary by key) puts
+    the opcode on each key's groups.
     """
     groups = {}
     for entry in sorted(entries, key=lambda e: (e["midi"], e["velocity"], e["round_robin"])):
@@ -114,14 +121,17 @@ def sfz_text(name, entries, *, comment_lines=(), release_t60=None):
         layers.setdefault(midi, []).append(velocity)
     lines = [f"// {name}: sample map written by synth {__version__}"]
     lines += [f"// {line}" for line in comment_lines]
-    key_up = "loop_mode=one_shot" if release_t60 is None else f"ampeg_release={release_t60:g}"
-    lines += ["<global>", "amp_veltrack=0", key_up, ""]
+    per_key = release_t60 if isinstance(release_t60, dict) else None
+    if per_key is not None and len(set(per_key.values())) <= 1:  # one value for every key: say it once
+        release_t60, per_key = next(iter(per_key.values()), None), None
+    lines += ["<global>", "amp_veltrack=0"] + ([] if per_key is not None else [_key_up(release_t60)]) + [""]
     for (midi, velocity), members in groups.items():
         lokey, hikey = keys[midi]
         lovel, hivel = velocity_ranges(layers[midi])[velocity]
+        own = "" if per_key is None else " " + _key_up(per_key.get(midi))
         lines.append(
             f"<group> lokey={lokey} hikey={hikey} pitch_keycenter={midi} lovel={lovel} hivel={hivel} "
-            f"seq_length={len(members)}"
+            f"seq_length={len(members)}{own}"
         )
         for position, entry in enumerate(members, start=1):
             lines.append(f"<region> sample={entry['file']} seq_position={position}")
@@ -131,6 +141,14 @@ def sfz_text(name, entries, *, comment_lines=(), release_t60=None):
 
 # ---------------------------------------------------------------------------
 # The manifest file
+
+
+def _release(spec):
+    """The damper T60 of the library: one value, or {MIDI key: value} for an instrument."""
+    release_at = getattr(spec.patch, "release_t60_at", None)
+    if release_at is None:
+        return spec.patch.damping.release_t60
+    return {midi: release_at(midi) for _, midi in spec.notes}
 
 
 def read_manifest(folder):
@@ -192,6 +210,7 @@ def index_texts(spec, jobs, entries, failed, *, lib_hash, gain, basis, stale=())
         "peak_db": render.peak_db,
         "peak": render.peak,
         "release_t60_s": spec.patch.damping.release_t60,
+        "instrument": hasattr(spec.patch, "keys"),
         "gain": gain,
         "gain_db": gain_db,
         "gain_basis": basis,
@@ -210,5 +229,5 @@ def index_texts(spec, jobs, entries, failed, *, lib_hash, gain, basis, stale=())
         + (f" ({gain_db:+.2f} dB)" if gain_db is not None else "") + ", so velocity layers keep their dynamics",
         "listening caution: start playback quietly; long exposure to loud sound harms hearing",
     )
-    sfz = sfz_text(spec.name, current, comment_lines=comments, release_t60=spec.patch.damping.release_t60)
+    sfz = sfz_text(spec.name, current, comment_lines=comments, release_t60=_release(spec))
     return manifest_text(manifest), sfz + "\n"

@@ -65,7 +65,7 @@ from .libindex import (
     VELOCITY_LOW,
 )
 from .modes import table_to_dict
-from .patch import load_patch
+from .instrument_file import load_playable
 from .pipeline import partial_table
 from .schema import Field, Section, read_section
 from .units import midi_to_note, note_to_midi
@@ -104,7 +104,7 @@ _SPEC_FIELDS = {
     "name": Field("slug"),
     "patch": Field("str", required=True),
     "output": Field("str"),
-    "notes": Field("any", required=True),
+    "notes": Field("any"),
     "velocities": Field("any"),
     "round_robin": Field("int", default=1, low=1, high=MAX_ROUND_ROBIN),
     "variation": Field("any"),
@@ -221,9 +221,20 @@ def load_library_spec(path, *, output=None):
         raise top.error("patch", f"{str(patch_path)!r} is a folder, not a patch file")
     if not patch_path.is_file():
         raise top.error("patch", f"no patch file {str(patch_path)!r} (paths are relative to the spec file)")
-    patch = load_patch(patch_path)
+    patch = load_playable(patch_path)
     name = values["name"] or patch.name
-    notes = _notes(top, mapping["notes"])
+    if mapping.get("notes") is None:
+        if not hasattr(patch, "keys"):
+            raise top.missing("notes", _SPEC_FIELDS["notes"]) if "notes" not in mapping else top.error(
+                "notes", "must be a list of notes (e.g. [A2, A3, A4]) or a range {from: C2, to: C5, step: 1}")
+        notes = tuple((midi_to_note(m), m) for m in patch.keys)  # an instrument: every key of its range
+    else:
+        notes = _notes(top, mapping["notes"])
+        contains = getattr(patch, "contains", None)
+        outside = [text for text, midi in notes if contains is not None and not contains(midi)]
+        if outside:
+            raise top.error("notes", f"{', '.join(outside[:6])}{' ...' if len(outside) > 6 else ''} lie outside the "
+                                     f"range {patch.range_text} of instrument {patch.name}")
     velocities = _velocities(top, mapping.get("velocities"))
     variation = Variation()
     if mapping.get("variation") is not None:
@@ -367,6 +378,12 @@ def _moved_point(point, jitter, offsets):
     return dataclasses.replace(point, values=tuple(values))
 
 
+def _excitation_point(playable, midi):
+    """Where key `midi` is excited: an instrument's varied point, else the patch's."""
+    point_at = getattr(playable, "excitation_point", None)
+    return playable.excitation.position if point_at is None else point_at(midi)
+
+
 def library_jobs(spec):
     """One :class:`Job` per note x velocity x round robin, sorted by file name (no physics)."""
     jobs = []
@@ -382,7 +399,7 @@ def library_jobs(spec):
                     round_robin=rr,
                     file=sample_file_name(spec.name, midi, velocity, rr),
                     detune_cents=float(spec.variation.detune_cents * offsets[0]),
-                    point=_moved_point(spec.patch.excitation.position, spec.variation.position, offsets),
+                    point=_moved_point(_excitation_point(spec.patch, midi), spec.variation.position, offsets),
                 ))
     return jobs
 
@@ -447,6 +464,9 @@ def _digest(value):
 
 def patch_fingerprint(patch):
     """SHA-256 of every value of `patch` that changes its sound (not its file name or lines)."""
+    fingerprint = getattr(patch, "fingerprint", None)  # an instrument: its file's values and its base patch's
+    if fingerprint is not None:
+        return _digest({"instrument": fingerprint()})
     return _digest({"patch": dataclasses.replace(patch, source="", lines={})})
 
 

@@ -66,9 +66,10 @@ from tqdm import tqdm
 from .audio import check_output_path, make_output_folder
 from .errors import InputFileError, PatchError, RenderError
 from .midifile import MidiSong, TempoMap, read_midi, tempo_map
-from .patch import _RENDER_FIELDS, MEMORY_LIMIT_BYTES, load_patch
+from .instrument_file import load_playable
+from .patch import _RENDER_FIELDS, MEMORY_LIMIT_BYTES
 from .schema import Field, Section, convert_option, read_section
-from .units import A4_HZ, midi_to_note
+from .units import midi_to_note
 from .voices import (
     VoicingCache,
     pan_gains,
@@ -401,7 +402,7 @@ def _setup(patch, map_file, sample_rate, bit_depth):
     given = {"sample_rate": (sample_rate, "--sample-rate"), "bit_depth": (bit_depth, "--bit-depth")}
     given = {name: pair for name, pair in given.items() if pair[0] is not None}
     if patch is not None:
-        loaded = load_patch(patch, overrides={f"render.{name}": pair for name, pair in given.items()})
+        loaded = load_playable(patch, overrides={f"render.{name}": pair for name, pair in given.items()})
         chmap = ChannelMap({}, {}, MapEntry(Path(patch)), {})
         settings = {"sample_rate": loaded.render.sample_rate, "bit_depth": loaded.render.bit_depth,
                     "peak_db": loaded.render.peak_db, "peak": loaded.render.peak}
@@ -414,11 +415,39 @@ def _setup(patch, map_file, sample_rate, bit_depth):
         patches = {}
         for entry in [*chmap.channels.values(), *chmap.tracks.values(), *([chmap.default] if chmap.default else [])]:
             if entry.patch_path not in patches:
-                patches[entry.patch_path] = load_patch(entry.patch_path)
+                patches[entry.patch_path] = load_playable(entry.patch_path)
     rate = settings["sample_rate"]
     order = {path: i for i, path in enumerate(patches)}
-    voiced = [replace(p, render=replace(p.render, sample_rate=rate)) for p in patches.values()]
+    voiced = [_at_rate(p, rate) for p in patches.values()]
     return chmap, order, voiced, settings
+
+
+def _at_rate(playable, rate):
+    """A patch or an instrument rendering at `rate`."""
+    if hasattr(playable, "with_render"):
+        return playable.with_render(sample_rate=rate)
+    return replace(playable, render=replace(playable.render, sample_rate=rate))
+
+
+def _in_ranges(performance, assigned, patches):
+    """(performance, assigned) without the notes an instrument has no key for, and one warning per instrument."""
+    outside = defaultdict(list)
+    kept = []
+    for i, (note, (index, _)) in enumerate(zip(performance.notes, assigned)):
+        contains = getattr(patches[index], "contains", None)
+        if contains is not None and not contains(note.key):
+            outside[index].append(note.key)
+        else:
+            kept.append(i)
+    if not outside:
+        return performance, assigned, []
+    warnings = []
+    for index, keys in outside.items():
+        shown = ", ".join(midi_to_note(k) for k in sorted(set(keys))[:6]) + (" ..." if len(set(keys)) > 6 else "")
+        warnings.append(f"{patches[index].name} plays {patches[index].range_text}: {len(keys)} note(s) outside "
+                        f"it skipped ({shown})")
+    notes = tuple(performance.notes[i] for i in kept)
+    return replace(performance, notes=notes), [assigned[i] for i in kept], warnings
 
 
 def _assign(performance, song, chmap, order):
@@ -474,7 +503,7 @@ def render_midi(song_path, *, output, patch=None, map_file=None, a4_hz=None, sam
     if (patch is None) == (map_file is None):
         raise ValueError("give exactly one of patch= (every channel) or map_file= (a map file)")
     a4_field = Field("frequency", low=A4_RANGE_HZ[0], high=A4_RANGE_HZ[1])
-    a4 = A4_HZ if a4_hz is None else convert_option(a4_field, a4_hz, "--a4")
+    a4 = None if a4_hz is None else convert_option(a4_field, a4_hz, "--a4")  # None: 440 Hz, or an instrument's own
     tail = None if tail_s is None else convert_option(Field("time", low=0.0, high=3600.0), tail_s, "--tail")
     song = read_midi(song_path)
     chmap, order, patches, settings = _setup(patch, map_file, sample_rate, bit_depth)
@@ -486,6 +515,9 @@ def render_midi(song_path, *, output, patch=None, map_file=None, a4_hz=None, sam
         raise InputFileError(f"no notes to play ({len(song.track_names)} track(s), {len(song.events)} "
                              "tempo/controller events): nothing to render", file=song.path)
     assigned = _assign(performance, song, chmap, order)
+    performance, assigned, skipped = _in_ranges(performance, assigned, patches)
+    if not performance.notes:
+        raise InputFileError(f"every note lies outside the instrument's range: {'; '.join(skipped)}", file=song.path)
     bar = {"unit": "note", "disable": not progress, "file": sys.stderr}
     cache = VoicingCache(patches, a4_hz=a4)
     voiced = _voice(performance, assigned, cache, bar)
@@ -501,13 +533,13 @@ def render_midi(song_path, *, output, patch=None, map_file=None, a4_hz=None, sam
         raise RenderError(f"the song buffer would need {n_out * n_channels * 4 / 2**30:.1f} GiB "
                           f"(limit {MEMORY_LIMIT_BYTES / 2**30:.0f} GiB): lower --sample-rate or set a shorter --tail")
     buffer = np.zeros((n_out, 2) if stereo else n_out, np.float32)
-    _mix(buffer, performance, assigned, voiced, cache.patches, bar)
+    _mix(buffer, performance, assigned, voiced, cache, bar)
     if make_folder:
         make_output_folder(output)
     gain_db, peak_dbfs, true_peak_dbtp = write_song(output, buffer, sample_rate=rate, bit_depth=bits,
                                                     peak_db=settings["peak_db"], peak=settings["peak"],
                                                     key=None if make_folder else "--output")
-    warnings = list(performance.warnings) + _tone_warnings(cache)
+    warnings = list(performance.warnings) + skipped + _tone_warnings(cache)
     return MidiRender(output, len(performance.notes), n_out / rate, rate, bits, n_channels, peak_dbfs,
                       true_peak_dbtp, gain_db, cache.solves, tuple(warnings))
 
@@ -522,12 +554,12 @@ def _voice(performance, assigned, cache, bar):
             context = _note_context(note, note.onset / performance.sample_rate)
             raise PatchError(f"{context}: {error.message}", file=error.file, line=error.line, key=error.key) from None
         end = voice_end(tone, onset=note.onset, damper=note.damper,
-                        release_t60=cache.patches[index].damping.release_t60, sample_rate=performance.sample_rate)
+                        release_t60=cache.release_t60(index, note.key), sample_rate=performance.sample_rate)
         voiced.append((tone, end))
     return voiced
 
 
-def _mix(buffer, performance, assigned, voiced, patches, bar):
+def _mix(buffer, performance, assigned, voiced, cache, bar):
     """Render every voice, one at a time, and add it into `buffer` with its gains."""
     rate, stereo = performance.sample_rate, buffer.ndim == 2
     bends = {channel: quantise_bends(s, r, rate) for channel, (s, r) in performance.bends.items()}
@@ -535,7 +567,7 @@ def _mix(buffer, performance, assigned, voiced, patches, bar):
                                                   **bar):
         gains = _gains(entry, note, stereo)
         segments = render_voice(tone, onset=note.onset, stop=min(math.ceil(end), buffer.shape[0]), damper=note.damper,
-                                release_t60=patches[index].damping.release_t60, sample_rate=rate,
+                                release_t60=cache.release_t60(index, note.key), sample_rate=rate,
                                 bend=bends.get(note.channel))
         for start, signal in segments:
             stop = start + signal.size

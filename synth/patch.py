@@ -20,7 +20,7 @@ from .resonators import (
     resonator_module,
 )
 from .solvecache import DEFAULT_CACHE
-from .schema import Field, Section, check_keys, convert, convert_option, read_section
+from .schema import Field, Section, convert, convert_option, read_section
 from .units import short_repr
 from .yamlio import LineDict, load_yaml_file, load_yaml_text
 
@@ -195,6 +195,7 @@ class Patch:
     pickup: Pickup
     damping: Damping
     render: RenderSettings
+    coupling: object = None  # synth.coupling.KeyCoupling of an instrument's key; None for a patch file
     source: str = "<patch>"
     lines: dict = field(default_factory=dict, compare=False)
 

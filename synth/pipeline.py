@@ -8,12 +8,11 @@ is applied to the solved modes.
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 
 import numpy as np
 
 from .damping import LN1000, two_point_t60
-from .engine import render_modes
 from .excitation import MEASURES, drive_coefficients, onset_samples
 from .modes import NODE_TOLERANCE, PartialTable, frozen_array
 from .patch import MAX_SAMPLE_RATE
@@ -62,6 +61,8 @@ class Unweighted:
     t60_s: np.ndarray  # of the kept modes
     fundamental_hz: float
     warnings: tuple
+    source: np.ndarray | None = None  # coupled: the computed mode below Nyquist each kept sub-mode comes from
+    mix: np.ndarray | None = None  # coupled: each sub-mode's complex mixing weight (synth.coupling)
 
 
 def unweighted_partials(patch, *, modes=None, detune_cents=0.0, cache=None):
@@ -104,7 +105,30 @@ def unweighted_partials(patch, *, modes=None, detune_cents=0.0, cache=None):
         # Decay times given per mode (None: the damping section's) replace the two-point T60.
         given = np.array([np.nan if v is None else v for v in kept.columns["t60_s"]], dtype=float)
         t60 = np.where(np.isfinite(given), given, t60)
-    return Unweighted(modes, keep, kept, t60, fundamental, tuple(warnings))
+    if patch.coupling is None:
+        return Unweighted(modes, keep, kept, t60, fundamental, tuple(warnings))
+    return _coupled(patch, modes, keep, kept, t60, fundamental, warnings)
+
+
+def _coupled(patch, modes, keep, kept, t60, fundamental, warnings):
+    """Unweighted partials with every mode replaced by its coupled sub-modes (:mod:`synth.coupling`)."""
+    from .coupling import string_impedance
+
+    impedance = string_impedance(kept.parameters)
+    harmonic = np.asarray(kept.columns.get("harmonic", range(1, len(kept.frequency_hz) + 1)), dtype=float)
+    coupled = patch.coupling.apply(kept.frequency_hz, LN1000 / t60, harmonic, impedance=impedance)
+    below = coupled.frequency_hz < patch.render.sample_rate / 2.0
+    source = np.asarray(coupled.source)[below]
+    suffix = [s for s, b in zip(coupled.suffix, below) if b]
+    expanded = kept.select(source)
+    labels = tuple(f"{label} {tag}" if tag else label for label, tag in zip(expanded.labels, suffix))
+    expanded = replace(expanded, frequency_hz=frozen_array(coupled.frequency_hz[below]), labels=labels,
+                       columns={**expanded.columns, "coupled": tuple(suffix)},
+                       parameters={**expanded.parameters, **patch.coupling.parameters()})
+    with np.errstate(divide="ignore"):
+        t60 = np.where(coupled.decay_rate[below] > 0, LN1000 / coupled.decay_rate[below], np.inf)
+    return Unweighted(modes, keep, expanded, t60, fundamental, tuple(warnings), source=source,
+                      mix=np.asarray(coupled.weight)[below])
 
 
 def weigh(patch, unweighted):
@@ -131,6 +155,9 @@ def weigh(patch, unweighted):
     scale = np.abs(modes.excitation_shape * modes.pickup_shape)
     null = (scale <= NODE_TOLERANCE * max(float(np.max(scale)), 1e-300))[keep]
     coefficient = np.where(null, 0.0, coefficient[keep])
+    if unweighted.source is not None:  # coupled sub-modes: each takes its mode's drive times its mixing weight
+        null = null[unweighted.source]
+        coefficient = coefficient[unweighted.source] * unweighted.mix
     sample_rate = patch.render.sample_rate
     omega = 2.0 * math.pi * kept.frequency_hz
     s = -LN1000 / unweighted.t60_s + 1j * omega

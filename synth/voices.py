@@ -43,7 +43,6 @@ from .pipeline import unweighted_partials, weigh
 from .tone import Tone, decay_samples
 from .wavmeta import needs_rf64, zero_peak_timestamp
 from .tone import envelope as _envelope
-from .units import A4_HZ
 from .voicing import voice_patch
 
 __all__ = [
@@ -73,8 +72,9 @@ class VoicingCache:
     ----------
     patches : sequence of Patch
         Indexed by the ``patch_index`` of :meth:`tone`.
-    a4_hz : float, Hz
-        Tuning reference for 12-TET note frequencies.
+    a4_hz : float or None, Hz
+        Tuning reference for 12-TET note frequencies (None: 440 Hz for a
+        patch, an instrument's own ``tuning.a4``).
 
     Attributes
     ----------
@@ -90,9 +90,9 @@ class VoicingCache:
     note/velocity pairs stays small in memory.
     """
 
-    def __init__(self, patches, *, a4_hz=A4_HZ):
+    def __init__(self, patches, *, a4_hz=None):
         self.patches = tuple(patches)
-        self.a4_hz = float(a4_hz)
+        self.a4_hz = None if a4_hz is None else float(a4_hz)
         self.solves = 0
         self._tones = {}
         self._notes = {}  # (patch_index, note) -> unweighted partials: shared by every velocity
@@ -119,6 +119,14 @@ class VoicingCache:
             tone = Tone.from_table(weigh(voiced, unweighted))
             self._tones[key] = tone
         return tone
+
+    def release_t60(self, patch_index, note):
+        """The damper's T60 (s, or None: no dampers) of MIDI `note` on patch `patch_index` (an instrument's key's own)."""
+        playable = self.patches[patch_index]
+        key_patch = getattr(playable, "key_patch", None)
+        if key_patch is None:
+            return playable.damping.release_t60
+        return key_patch(int(note), a4_hz=self.a4_hz).damping.release_t60
 
     def items(self):
         """((patch_index, note, velocity, a4_hz), Tone) of every voicing computed so far."""

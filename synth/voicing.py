@@ -37,18 +37,22 @@ def velocity_contact_time(contact_time, velocity):
     return contact_time * (REFERENCE_VELOCITY / float(velocity)) ** CONTACT_EXPONENT
 
 
-def voice_patch(patch, *, midi_note=None, pitch_hz=None, velocity=REFERENCE_VELOCITY, a4_hz=A4_HZ, detune_cents=0.0,
+def voice_patch(patch, *, midi_note=None, pitch_hz=None, velocity=REFERENCE_VELOCITY, a4_hz=None, detune_cents=0.0,
                 cache=None):
     """`patch` retuned to a note and scaled for a velocity.
 
     Parameters
     ----------
-    patch : Patch
+    patch : Patch or Instrument
+        An instrument (:class:`synth.instrument.Instrument`) gives the patch
+        of key `midi_note` as designed (its own tuning; `a4_hz`, when not
+        None, moves it); a patch is retuned to the note.
     midi_note : float or None
         12-TET note number (69 = A4 at `a4_hz`); or give `pitch_hz`.
     pitch_hz : float or None, Hz
     velocity : int, 1..127
-    a4_hz : float, Hz
+    a4_hz : float or None, Hz
+        Tuning reference (None: 440 Hz for a patch, the instrument's own).
     detune_cents : float, cents
         Added to the pitch (the object is retuned to it; to move the
         partials of the object as solved for the note instead, pass the
@@ -69,8 +73,16 @@ def voice_patch(patch, *, midi_note=None, pitch_hz=None, velocity=REFERENCE_VELO
 
     if not 1 <= velocity <= 127:
         raise ValueError(f"velocity={velocity!r} must be in 1..127")
+    key_patch = getattr(patch, "key_patch", None)
+    if key_patch is not None:  # an instrument: the key's own object, tuned as designed
+        if midi_note is None:
+            raise ValueError("an instrument is played by key: give midi_note")
+        if detune_cents:
+            raise ValueError("an instrument's key is tuned as designed: detune its partials (partial_table) instead")
+        patch = key_patch(midi_note, a4_hz=a4_hz)
+        pitch_hz = midi_note = None
     if pitch_hz is None and midi_note is not None:
-        pitch_hz = float(midi_to_hz(midi_note, a4_hz=a4_hz))
+        pitch_hz = float(midi_to_hz(midi_note, a4_hz=A4_HZ if a4_hz is None else a4_hz))
     if pitch_hz is not None:
         patch = retune(patch, pitch_hz * 2.0 ** (detune_cents / 1200.0), cache=cache)
     excitation = replace(

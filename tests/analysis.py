@@ -69,3 +69,25 @@ def measured_t60(signal, sample_rate, frequency, *, start_s=0.05, stop_s=None, f
     use = (times >= start_s) & (times <= stop_s)
     slope = np.polyfit(times[use], level[use], 1)[0]  # dB per second
     return -60.0 / slope
+
+
+def phase_frequency(signal, sample_rate, frequency, *, frame_s=0.04, start_s=0.05, stop_s=None):
+    """Frequency (Hz) of the component near `frequency` from the slope of its phase.
+
+    Heterodyne by `frequency`, average Hann-windowed frames (which rejects every
+    component more than a few 1/`frame_s` away), unwrap the frames' phase and fit
+    a straight line: the slope over 2 pi is the offset from `frequency`.
+    """
+    t = np.arange(len(signal)) / sample_rate
+    baseband = signal * np.exp(-2j * np.pi * frequency * t)
+    frame = int(round(frame_s * sample_rate))
+    hop = frame // 2
+    starts = np.arange(0, len(signal) - frame, hop)
+    window = np.hanning(frame)
+    values = np.array([baseband[s : s + frame] @ window for s in starts])
+    times = (starts + frame / 2) / sample_rate
+    stop_s = times[-1] if stop_s is None else stop_s
+    use = (times >= start_s) & (times <= stop_s)
+    phase = np.unwrap(np.angle(values[use]))
+    slope = np.polyfit(times[use], phase, 1)[0]
+    return frequency + slope / (2 * np.pi)
