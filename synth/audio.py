@@ -11,6 +11,7 @@ from __future__ import annotations
 
 import math
 import os
+import sys
 import tempfile
 import threading
 from pathlib import Path
@@ -28,6 +29,7 @@ __all__ = [
     "sampler_fields",
     "atomic_output",
     "check_output_file",
+    "output_path",
     "check_output_path",
     "make_output_folder",
     "whole_sample_rate",
@@ -166,12 +168,27 @@ def quantise(signal, bit_depth, *, seed=DITHER_SEED, dither=None):
     raise ValueError(f"bit_depth={bit_depth!r} must be one of 16, 24, 32")
 
 
+#: Longest file or folder name most file systems take (bytes; ext4, XFS, APFS, NTFS all 255).
+NAME_MAX_BYTES = 255
+
+
 def _same_file(a, b):
     """True if paths `a` and `b` name one file (links and ``..`` included)."""
     try:
         return os.path.samefile(a, b)
     except OSError:  # one of them does not exist (yet)
+        pass
+    except ValueError:  # a NUL byte: no file has that name (the reader of the input says so)
+        return False
+    try:
         return Path(a).resolve() == Path(b).resolve()
+    except (OSError, RuntimeError, ValueError):  # a symbolic-link loop: not the same as an input that exists
+        return False
+
+
+def output_path(path):
+    """`path` read lexically (``out/../x.wav`` is ``x.wav``), so no folder is made only to be left again."""
+    return Path(os.path.normpath(os.fspath(path)))
 
 
 def check_output_file(path, *, suffixes, inputs=(), key="--output", make_folder=False):
@@ -193,20 +210,40 @@ def check_output_file(path, *, suffixes, inputs=(), key="--output", make_folder=
     Returns
     -------
     Path
+
+    Notes
+    -----
+    One validator for every output file: a NUL byte, a name longer than
+    :data:`NAME_MAX_BYTES`, a symbolic-link loop, a folder in the way and an
+    input of the command are each refused with one line before anything is
+    rendered.
     """
-    path = Path(path)
+    text = os.fspath(path)
+    if "\0" in text:
+        raise option_error("the output path contains a NUL byte", key)
+    path = Path(text)
+    long = [part for part in path.parts if len(os.fsencode(part)) > NAME_MAX_BYTES]
+    if long:
+        raise option_error(f"the name {long[0][:40]!r}... is {len(os.fsencode(long[0]))} bytes long "
+                           f"(file systems take at most {NAME_MAX_BYTES})", key)
     if path.suffix.lower() not in suffixes:
-        raise option_error(f"output must end in {' or '.join(suffixes)}, got {path.name!r}", key)
+        raise option_error(f"output must end in {' or '.join(suffixes)}, got {path.name[:80]!r}", key)
     for source in inputs:
         if source is not None and _same_file(path, source):
             raise option_error(f"{str(path)!r} is an input of this command; name another file", key)
-    if path.is_dir():
-        raise option_error(f"{str(path)!r} is a folder; name a file inside it", key)
-    folder = path.parent
-    if folder.exists() and not folder.is_dir():
-        raise option_error(f"{str(folder)!r} is not a folder", key)
-    if not make_folder and not folder.exists():
-        raise option_error(f"output folder {str(folder)!r} does not exist", key)
+    try:
+        path.resolve(strict=False)
+        if path.is_dir():
+            raise option_error(f"{str(path)!r} is a folder; name a file inside it", key)
+        folder = path.parent
+        if folder.exists() and not folder.is_dir():
+            raise option_error(f"{str(folder)!r} is not a folder", key)
+        if not make_folder and not folder.exists():
+            raise option_error(f"output folder {str(folder)!r} does not exist", key)
+    except RuntimeError:  # Path.resolve: "Symlink loop"
+        raise option_error(f"{str(path)!r} runs through a loop of symbolic links", key) from None
+    except OSError as error:
+        raise option_error(f"cannot use {str(path)!r}: {error.strerror or error}", key) from None
     return path
 
 
@@ -265,7 +302,8 @@ class atomic_output:
         self.tmp = None
 
     def _error(self, error):
-        message = f"cannot write {str(self.path)!r}: {error.strerror or error}"
+        reason = getattr(error, "strerror", None) or str(error).strip().splitlines()[-1][:200] or type(error).__name__
+        message = f"cannot write {str(self.path)!r}: {reason}"
         if self.key is None:
             return RenderError(message)
         return option_error(message, self.key)
@@ -298,9 +336,15 @@ class atomic_output:
                 raise self._error(error) from None
             return False
         self._remove()
-        if issubclass(kind, OSError):
+        if issubclass(kind, OSError) or _is_soundfile_error(value):
             raise self._error(value) from None  # e.g. the disk filled up while writing
         return False
+
+
+def _is_soundfile_error(error):
+    """True for libsndfile's errors (soundfile raises RuntimeError subclasses, not OSError, for a full disk)."""
+    soundfile = sys.modules.get("soundfile")
+    return soundfile is not None and isinstance(error, getattr(soundfile, "SoundFileError", ()))
 
 
 def sampler_fields(pitch_midi, *, low_note=0, high_note=127, low_velocity=1, high_velocity=127):

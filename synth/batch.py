@@ -27,10 +27,17 @@ How a run goes
 4. **Resume**: a file whose effective-parameter hash (job, voiced patch,
    dither seed, gain, versions) and size match its manifest entry is skipped
    and not touched; ``force`` renders all again.
-5. **Ctrl-C**: the first SIGINT stops submitting work; running jobs finish and
-   are written (workers ignore SIGINT: only this process decides); manifest
-   and map are rewritten from what is on disk; exit status 130.  A second
-   SIGINT stops at once; atomic writes still leave no partial file.
+5. **Ctrl-C and SIGTERM** (:mod:`synth.signals`): the first stops submitting
+   work; running jobs finish and are written (workers ignore SIGINT: only this
+   process decides); manifest and map are rewritten from what is on disk; the
+   pool is shut down; exit status 130 (SIGINT) or 143 (SIGTERM).  A second
+   signal stops at once: workers are terminated, temporaries removed, and
+   atomic writes still leave no partial file.  The manifest is also rewritten
+   during the run after every small group of files (at most ~10% of the
+   run's time goes to it), so even a SIGKILL loses little.
+7. **One run per folder**: a run holds an advisory lock (``flock``) on its
+   output folder, released by the kernel when the process ends; a second run
+   on the folder is refused, naming the pid.
 6. A failed job (a pitch the object cannot reach, every mode above Nyquist,
    ...) is reported and the others go on; the exit status is then 1.
 """
@@ -40,7 +47,6 @@ import dataclasses
 import itertools
 import math
 import os
-import signal
 import sys
 import tempfile
 import threading
@@ -50,11 +56,12 @@ from pathlib import Path
 
 import numpy as np
 
-from .audio import atomic_output, dither_gain, encode_wav, normalise, peak_dbfs, quantise, sampler_fields
+from .audio import _same_file, atomic_output, dither_gain, encode_wav, normalise, peak_dbfs, quantise, sampler_fields
 from .damping import LN1000
 from .errors import ModalError, PatchError, RenderError
 from .executors import Inline as _Inline
-from .executors import backend, default_workers
+from .executors import WORKER_TIMEOUT_S, backend, default_workers
+from .signals import StopFlag
 from .libindex import MANIFEST_NAME, index_texts, key_ranges, read_manifest, velocity_ranges
 from .library import (
     dither_seed,
@@ -76,7 +83,8 @@ from .pipeline import partial_table
 __all__ = ["LibraryResult", "build_library", "summary_lines", "default_workers", "PEAK_PREFIX_S"]
 
 PEAK_PREFIX_S = 0.25  # s, first span rendered when measuring a job's peak (doubled until exact)
-MANIFEST_INTERVAL_S = 30.0  # s, the manifest is also rewritten this often during a long run
+MANIFEST_INTERVAL_S = 1.0  # s, the least time between two rewrites of the manifest during a run
+MANIFEST_SHARE = 0.1  # ... and at most this share of the run's time goes to rewriting it
 MAX_BATCH_JOBS = 16  # jobs handed to a worker at a time (fewer round trips; a few MB of WAV back)
 PREFETCH_JOBS = 1024  # jobs' tables made ready before the first render task is handed out
 #: What a local worker needs beyond this module, imported once in the fork server.
@@ -258,32 +266,6 @@ def _execute(task):
         return [(item[0], *_one(kind, settings, item)) for item in items]
 
 
-class _StopFlag:
-    """SIGINT sets `requested`; a second SIGINT raises KeyboardInterrupt at once."""
-
-    def __init__(self):
-        self.requested = False
-        self.previous = None
-
-    def _handle(self, signum, frame):
-        if self.requested:
-            raise KeyboardInterrupt
-        self.requested = True
-
-    def __enter__(self):
-        if threading.current_thread() is threading.main_thread():
-            previous = signal.getsignal(signal.SIGINT)
-            if previous is not signal.SIG_IGN:
-                self.previous = previous
-                signal.signal(signal.SIGINT, self._handle)
-        return self
-
-    def __exit__(self, *exc):
-        if self.previous is not None:
-            signal.signal(signal.SIGINT, self.previous)
-        return False
-
-
 # ---------------------------------------------------------------------------
 # The run
 
@@ -294,8 +276,8 @@ class LibraryResult:
 
     `failed` holds (file, job label, message) per failed job; `stage` is
     "measuring" if the run was interrupted before any file was written, else
-    "rendering".  `exit_status` is 130 if interrupted, 1 if any job failed,
-    else 0.
+    "rendering".  `exit_status` is 130 or 143 if interrupted (SIGINT,
+    SIGTERM), 1 if any job failed, else 0.
     """
 
     name: str
@@ -306,7 +288,7 @@ class LibraryResult:
     rendered: int
     skipped: int
     failed: tuple
-    interrupted: bool
+    interrupted: int | None  # the exit status of the signal that stopped the run (130, 143), or None
     stage: str
     gain: float | None
     gain_reused: bool
@@ -321,8 +303,8 @@ class LibraryResult:
 
     @property
     def exit_status(self):
-        """Exit status of ``synth batch``: 130 interrupted, 1 some job failed, 0 all written."""
-        return 130 if self.interrupted else 1 if self.failed else 0
+        """Exit status of ``synth batch``: 130 / 143 interrupted (SIGINT / SIGTERM), 1 some job failed, 0 all written."""
+        return self.interrupted if self.interrupted else 1 if self.failed else 0
 
 
 def _remove_temporaries(folder, name):
@@ -600,7 +582,10 @@ class _Run:
     def prune_stale(self, prune):
         """Delete the stale files (:meth:`find_stale`) if `prune`."""
         if prune:
+            inputs = _inputs(self.spec)
             for name in self.stale:
+                if any(_same_file(self.folder / name, source) for source in inputs):
+                    continue  # never an input, whatever an old manifest says
                 try:
                     (self.folder / name).unlink()
                     self.pruned.append(name)
@@ -624,7 +609,31 @@ class _Run:
                 tmp.write_text(text, encoding="utf-8")
 
 
-def build_library(spec_path, *, output=None, workers=None, scheduler=None, force=False, progress=None, prune=False):
+def _inputs(spec):
+    """The files a library run reads: its spec, its patch (or instrument) and an instrument's base patch and fits."""
+    files = [spec.source, spec.patch_file, getattr(spec.patch, "source", None)]
+    base = getattr(spec.patch, "base", None)
+    if base is not None:
+        files.append(base.source)
+    store = getattr(spec.patch, "store", None)
+    if store is not None:
+        files.append(store.path)
+    return [f for f in files if f]
+
+
+def _check_inputs_kept(spec, jobs):
+    """PatchError (key ``output``) if any file the run writes would be one of its inputs."""
+    outputs = [MANIFEST_NAME, f"{spec.name}.sfz"] + [job.file for job in jobs]
+    inputs = _inputs(spec)
+    for name in outputs:
+        for source in inputs:
+            if _same_file(spec.output / name, source):
+                raise PatchError(f"the library would write {name} over its own input {str(source)!r}: choose "
+                                 "another output folder (or name)", file=spec.source, key="output")
+
+
+def build_library(spec_path, *, output=None, workers=None, scheduler=None, force=False, progress=None, prune=False,
+                  worker_timeout=WORKER_TIMEOUT_S, verbose=False):
     """Render the sample library described by the spec at `spec_path`.
 
     Parameters
@@ -643,7 +652,12 @@ def build_library(spec_path, *, output=None, workers=None, scheduler=None, force
         Show progress bars (None: when stderr is a terminal).
     prune : bool
         Delete the stale files: those the previous manifest listed that this
-        spec no longer produces (never any other file).
+        spec no longer produces (never any other file, never an input).
+    worker_timeout : float, s
+        On a cluster: give up (:class:`~synth.errors.RunError`, exit status 1)
+        once no worker has been alive this long.
+    verbose : bool
+        On a cluster: let Dask's own logging through.
 
     Returns
     -------
@@ -657,7 +671,9 @@ def build_library(spec_path, *, output=None, workers=None, scheduler=None, force
     started = time.perf_counter()
     spec = load_library_spec(spec_path, output=output)
     jobs = library_jobs(spec)
-    executor = backend(_execute, workers, scheduler, len(jobs), preload=WORKER_PRELOAD)
+    _check_inputs_kept(spec, jobs)
+    executor = backend(_execute, workers, scheduler, len(jobs), preload=WORKER_PRELOAD,
+                       worker_timeout=worker_timeout, verbose=verbose)
     run = _Run(spec, jobs, force, workers=getattr(executor, "workers", 1), local=scheduler is None)
     rendered = 0
     reused = run.recorded_gain()
@@ -665,53 +681,128 @@ def build_library(spec_path, *, output=None, workers=None, scheduler=None, force
         run.carry_entries()
         if not run.to_render() and not run.force:  # an idle re-run: no worker is started
             executor = backend(_execute, 1, None, 1) if scheduler is None else executor
-    with executor, _StopFlag() as stop:
+    with StopFlag() as stop, executor:
         executor.warm_up()
         measure_started = time.perf_counter()
         # On this machine the peaks are measured here, where the tables are
         # made, while the workers start; a cluster measures them itself.
         gain_executor = executor if scheduler is not None else _Inline(_execute)
         if not reused and not run.measure_gain(gain_executor, stop, progress):
-            return _result(run, executor, started, 0.0, 0, "measuring", True)
+            return _result(run, executor, started, 0.0, 0, "measuring", stop.status)
         measure_s = time.perf_counter() - measure_started
         try:
             run.folder.mkdir(parents=True, exist_ok=True)
         except OSError as error:
             raise PatchError(f"cannot create the output folder {str(run.folder)!r}: {error.strerror or error}", key="output") from None
-        try:
-            _remove_temporaries(run.folder, spec.name)
-            if not reused:
-                run.carry_entries()
-            run.find_stale()
+        with folder_lock(run.folder):
+            try:
+                _remove_temporaries(run.folder, spec.name)
+                if not reused:
+                    run.carry_entries()
+                run.find_stale()
+                run.write_index()
+                todo = run.to_render()
+                by_index = {job.index: job for job in todo}
+                writes = _IndexWrites(run)
+                tasks = run.render_tasks(todo)
+                # While the workers start (their imports take a second), get the
+                # first tasks ready here; at most PREFETCH_JOBS of them are held.
+                ready = list(itertools.islice(tasks, max(1, PREFETCH_JOBS // run.batch_size)))
+                with _progress(len(todo), "rendering", progress) as bar:
+                    for index, status, value in run.results(executor, itertools.chain(ready, tasks), stop):
+                        job = by_index[index]
+                        if status == "ok":
+                            run.store(job, value)
+                            rendered += 1
+                        else:
+                            run.fail(job, value)
+                        bar.update(1)
+                        writes.after_file()
+            except (KeyboardInterrupt, ModalError):  # a second signal or a broken pool: still leave a true manifest
+                executor.terminate()
+                _remove_temporaries(run.folder, spec.name)
+                _try_index(run)
+                raise
+            except OSError as error:  # the disk filled up, the folder went away, ...
+                _try_index(run)
+                raise RenderError(f"cannot write to {str(run.folder)!r}: {error.strerror or error}") from None
+            run.prune_stale(prune and not stop.requested)
             run.write_index()
-            todo = run.to_render()
-            by_index = {job.index: job for job in todo}
-            last_write = time.monotonic()
-            tasks = run.render_tasks(todo)
-            # While the workers start (their imports take a second), get the
-            # first tasks ready here; at most PREFETCH_JOBS of them are held.
-            ready = list(itertools.islice(tasks, max(1, PREFETCH_JOBS // run.batch_size)))
-            with _progress(len(todo), "rendering", progress) as bar:
-                for index, status, value in run.results(executor, itertools.chain(ready, tasks), stop):
-                    job = by_index[index]
-                    if status == "ok":
-                        run.store(job, value)
-                        rendered += 1
-                    else:
-                        run.fail(job, value)
-                    bar.update(1)
-                    if time.monotonic() - last_write > MANIFEST_INTERVAL_S:
-                        run.write_index()
-                        last_write = time.monotonic()
-        except (KeyboardInterrupt, ModalError):  # a second Ctrl-C or a broken pool: still leave a true manifest
-            _try_index(run)
-            raise
-        except OSError as error:  # the disk filled up, the folder went away, ...
-            _try_index(run)
-            raise RenderError(f"cannot write to {str(run.folder)!r}: {error.strerror or error}") from None
-        run.prune_stale(prune and not stop.requested)
-        run.write_index()
-        return _result(run, executor, started, measure_s, rendered, "rendering", stop.requested)
+        return _result(run, executor, started, measure_s, rendered, "rendering", stop.status)
+
+
+class _IndexWrites:
+    """Rewrites the manifest during a run: after every small group of files, at most
+    :data:`MANIFEST_SHARE` of the run's time, and no more often than :data:`MANIFEST_INTERVAL_S`."""
+
+    def __init__(self, run):
+        self.run = run
+        self.last = time.monotonic()
+        self.cost = 0.0
+
+    def after_file(self):
+        now = time.monotonic()
+        if now - self.last < max(MANIFEST_INTERVAL_S, self.cost / MANIFEST_SHARE):
+            return
+        self.run.write_index()
+        self.last = time.monotonic()
+        self.cost = self.last - now
+
+
+class folder_lock:
+    """Context manager: an exclusive advisory lock (``flock``) on the output folder itself for one run.
+
+    Nothing is written for it (an idle re-run touches no file); the kernel
+    releases the lock when the process ends, however it ends, so a killed run
+    never leaves the folder locked.  A second run on the folder is refused
+    with one line naming the holder's pid (read from ``/proc/locks`` where
+    the system has it).
+    """
+
+    def __init__(self, folder):
+        self.folder = Path(folder)
+        self.fd = None
+
+    def __enter__(self):
+        try:
+            import fcntl
+        except ImportError:  # not on every platform: no lock there
+            return self
+        try:
+            self.fd = os.open(self.folder, os.O_RDONLY | getattr(os, "O_DIRECTORY", 0))
+        except OSError as error:
+            raise RenderError(f"cannot lock the output folder {str(self.folder)!r}: {error.strerror or error}") from None
+        try:
+            fcntl.flock(self.fd, fcntl.LOCK_EX | fcntl.LOCK_NB)
+        except OSError:
+            holder = _lock_holder(self.folder)
+            os.close(self.fd)
+            self.fd = None
+            raise RenderError(f"the output folder {str(self.folder)!r} is in use by another synth batch run "
+                              f"({holder}); wait for it or choose another output folder") from None
+        return self
+
+    def __exit__(self, *exc):
+        if self.fd is not None:
+            os.close(self.fd)  # releases the lock
+        return False
+
+
+def _lock_holder(folder):
+    """"pid N" of the process holding a flock on `folder` (from /proc/locks), or "another process"."""
+    try:
+        st = os.stat(folder)
+        wanted = (os.major(st.st_dev), os.minor(st.st_dev), st.st_ino)
+        with open("/proc/locks", encoding="ascii") as handle:
+            for line in handle:
+                fields = line.split()
+                if len(fields) > 5 and fields[1] == "FLOCK" and fields[0].endswith(":"):
+                    major, minor, inode = fields[5].split(":")
+                    if (int(major, 16), int(minor, 16), int(inode)) == wanted:
+                        return f"pid {int(fields[4])}"
+    except (OSError, ValueError):
+        pass
+    return "another process"
 
 
 def _try_index(run):

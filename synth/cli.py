@@ -183,9 +183,15 @@ def cmd_midi(args):
 
 def cmd_batch(args):
     from .batch import build_library, summary_lines
+    from .executors import WORKER_TIMEOUT_S
 
+    worker_timeout = WORKER_TIMEOUT_S
+    if args.worker_timeout is not None:
+        from .schema import Field, convert_option
+
+        worker_timeout = convert_option(Field("time", positive=True, high=86400.0), args.worker_timeout, "--worker-timeout")
     result = build_library(args.spec, output=args.output, workers=args.workers, scheduler=args.scheduler, force=args.force,
-                           prune=args.prune)
+                           prune=args.prune, worker_timeout=worker_timeout, verbose=args.verbose)
     out, err = summary_lines(result)
     for line in out:
         print(line)
@@ -332,6 +338,10 @@ def build_parser():
     batch.add_argument("--scheduler", metavar="ADDRESS", help="run the jobs on a Dask cluster, e.g. tcp://host:8786 (pip install '.[cluster]')")
     batch.add_argument("-o", "--output", metavar="DIR", help="output folder (overrides the spec's output)")
     batch.add_argument("--force", action="store_true", help="render every file again, even those up to date")
+    batch.add_argument("--worker-timeout", dest="worker_timeout", metavar="SECONDS",
+                       help="with --scheduler: give up (exit status 1) once no Dask worker has been alive this long "
+                            "(default 120 s)")
+    batch.add_argument("--verbose", action="store_true", help="with --scheduler: show Dask's own log messages")
     batch.add_argument("--prune", action="store_true",
                        help="delete the files the previous manifest listed that this spec no longer produces")
     batch.set_defaults(func=cmd_batch)
@@ -379,19 +389,42 @@ def _numeric_errors():
     return NUMERIC_ERRORS + ((numpy.linalg.LinAlgError,) if numpy is not None else ())
 
 
+#: Longest error line printed (characters): a huge value quoted in a message is cut in its middle.
+MAX_ERROR_CHARS = 1000
+
+
+def _one_line(message):
+    """`message` on one line of at most :data:`MAX_ERROR_CHARS` characters."""
+    message = " ".join(message.splitlines())  # every line separator Python knows: \r, \x0b, \x85, \u2028 ...
+    # Control characters (ESC, BEL, DEL, U+009B, ...) from a key or value would act on the terminal: escape them.
+    message = "".join(c if c.isprintable() else c.encode("unicode_escape").decode("ascii") for c in message)
+    if len(message) <= MAX_ERROR_CHARS:
+        return message
+    return f"{message[: MAX_ERROR_CHARS - 300]} ... {message[-280:]}"
+
+
 def main(argv=None):
     parser = build_parser()
     args = parser.parse_args(argv)
     for attr in ("duration", "sample_rate", "max_modes", "bit_depth"):
         if hasattr(args, attr):
             setattr(args, attr, _number_or_text(getattr(args, attr)))
+    for attr in ("output", "csv"):  # output paths are read lexically: out/../x.wav is x.wav
+        value = getattr(args, attr, None)
+        if isinstance(value, str) and value and "\0" not in value:
+            from .audio import output_path
+
+            setattr(args, attr, str(output_path(value)))
+    from .signals import exit_status, install
+
+    install()  # SIGTERM unwinds like Ctrl-C (synth/signals.py)
     try:
         status = args.func(args)
         sys.stdout.flush()  # a closed pipe shows here, not at interpreter exit
         return status
     except ModalError as error:
-        print(f"synth: error: {error}", file=sys.stderr)
-        return 2
+        print(f"synth: error: {_one_line(str(error))}", file=sys.stderr)
+        return getattr(error, "exit_status", 2)
     except BrokenPipeError:
         _silence_stdout()
         return BROKEN_PIPE_STATUS
@@ -400,9 +433,11 @@ def main(argv=None):
             raise
         print(f"synth: error: cannot compute this request ({_short(error)}): {NUMERIC_HINT}", file=sys.stderr)
         return 2
-    except KeyboardInterrupt:
-        print("synth: interrupted; nothing half-written was left behind", file=sys.stderr)
-        return 130
+    except KeyboardInterrupt as interrupt:  # Ctrl-C, or SIGTERM (signals.Terminated)
+        status = exit_status(interrupt)
+        what = "terminated" if status != 130 else "interrupted"
+        print(f"synth: {what}; nothing half-written was left behind", file=sys.stderr)
+        return status
 
 
 if __name__ == "__main__":  # pragma: no cover

@@ -61,6 +61,12 @@ class RenderError(RuntimeError, ModalError):
     """A render that cannot be done as asked (it would clip, or is too large)."""
 
 
+class RunError(RenderError):
+    """A run that started and could not finish (every cluster worker gone): exit status 1, not 2."""
+
+    exit_status = 1
+
+
 def option_error(message, option):
     """The PatchError about command-line `option` (``command line: --option: message``)."""
     return PatchError(message, file=COMMAND_LINE, key=option)

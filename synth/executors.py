@@ -14,16 +14,19 @@ import os
 import queue
 import re
 import signal
+import time
 from abc import ABC, abstractmethod
 from concurrent.futures import ProcessPoolExecutor
 from concurrent.futures.process import BrokenProcessPool
 
-from .errors import RenderError, option_error
+from .errors import RenderError, RunError, option_error
 
-__all__ = ["Inline", "Pool", "Dask", "backend", "default_workers", "POLL_S", "CONNECT_TIMEOUT_S"]
+__all__ = ["Inline", "Pool", "Dask", "backend", "default_workers", "POLL_S", "CONNECT_TIMEOUT_S", "WORKER_TIMEOUT_S"]
 
 POLL_S = 0.1  # s, how often the parent looks for Ctrl-C while waiting for results
 CONNECT_TIMEOUT_S = 10.0  # s, to reach a Dask scheduler
+WORKER_TIMEOUT_S = 120.0  # s, how long a run waits with no Dask worker alive before it gives up
+ALIVE_CHECK_S = 1.0  # s, how often the parent asks the scheduler how many workers it has
 _ADDRESS = re.compile(r"^(?:[a-z][a-z0-9]*://)?[A-Za-z0-9_.\[\]:-]+:\d{1,5}$|^inproc://\S+$")
 
 
@@ -55,6 +58,9 @@ class Inline:
     def __exit__(self, *exc):
         return False
 
+    def terminate(self):
+        """Nothing runs elsewhere."""
+
     def run(self, tasks, stop):
         for index, task in enumerate(tasks):
             if stop.requested:
@@ -72,6 +78,9 @@ class _Futures(ABC):
     def _cancel(self, futures):
         for future in futures:
             future.cancel()
+
+    def _check_alive(self):
+        """Called while waiting for results; raises if the work can no longer be done."""
 
     def _outcome(self, future):
         try:
@@ -107,6 +116,7 @@ class _Futures(ABC):
             try:
                 future = done.get(timeout=POLL_S)
             except queue.Empty:
+                self._check_alive()
                 continue
             index = index_of.pop(future)
             outcome = self._outcome(future)
@@ -152,8 +162,17 @@ class Pool(_Futures):
             self.executor.submit(_nothing)
 
     def __exit__(self, *exc):
-        self.executor.shutdown(wait=exc[0] is None, cancel_futures=True)
+        if exc[0] is not None:
+            self.terminate()
+        self.executor.shutdown(wait=True, cancel_futures=True)
         return False
+
+    def terminate(self):
+        """Stop every worker now (a second Ctrl-C or SIGTERM): no worker outlives the run."""
+        processes = getattr(self.executor, "_processes", None) or {}  # concurrent.futures keeps them by pid
+        for process in list(processes.values()):
+            if process.is_alive():
+                process.terminate()
 
     def _submit(self, task):
         return self.executor.submit(self.work, task)
@@ -188,10 +207,14 @@ class Dask(_Futures):
     #: Tasks kept in flight on a cluster (its size is not known here).
     workers = 64
 
-    def __init__(self, work, address):
+    def __init__(self, work, address, *, worker_timeout=WORKER_TIMEOUT_S, verbose=False):
         self.work = work
         self.address = address
+        self.worker_timeout = float(worker_timeout)
+        self.verbose = verbose
         self.description = f"Dask scheduler {address}"
+        self._checked = 0.0
+        self._none_since = None
 
     def __enter__(self):
         if not _ADDRESS.match(self.address):
@@ -205,6 +228,11 @@ class Dask(_Futures):
             raise option_error(
                 "needs Dask distributed, the optional extra 'cluster': pip install '.[cluster]'", "--scheduler"
             ) from None
+        if not self.verbose:  # Dask's own logging stays out of the user's terminal unless asked (--verbose)
+            import logging
+
+            for name in ("distributed", "tornado", "asyncio"):
+                logging.getLogger(name).setLevel(logging.CRITICAL + 1)
         try:
             self.client = Client(self.address, timeout=CONNECT_TIMEOUT_S, set_as_default=False)
         except (OSError, TimeoutError, ValueError, TypeError) as error:
@@ -212,11 +240,38 @@ class Dask(_Futures):
         return self
 
     def __exit__(self, *exc):
-        self.client.close()
+        try:
+            self.client.close(timeout=CONNECT_TIMEOUT_S)
+        except Exception:  # noqa: BLE001 - a scheduler that is gone cannot be told goodbye
+            pass
         return False
 
     def warm_up(self):
         """The cluster's workers are running already."""
+
+    def terminate(self):
+        """Nothing to stop here: the cluster's workers are not ours (what is pending is cancelled)."""
+
+    def _workers_alive(self):
+        try:
+            return len(self.client.nthreads())
+        except Exception:  # noqa: BLE001 - the scheduler itself is gone or not answering
+            return 0
+
+    def _check_alive(self):
+        """RunError once no worker has been alive for :attr:`worker_timeout` seconds."""
+        now = time.monotonic()
+        if now - self._checked < ALIVE_CHECK_S:
+            return
+        self._checked = now
+        if self._workers_alive():
+            self._none_since = None
+            return
+        if self._none_since is None:
+            self._none_since = now
+        elif now - self._none_since >= self.worker_timeout:
+            raise RunError(f"no Dask worker has been alive at {self.address} for {self.worker_timeout:g} s "
+                           "(--worker-timeout); files written so far are whole and in the manifest")
 
     def _submit(self, task):
         return self.client.submit(self.work, task, pure=False)
@@ -234,15 +289,16 @@ def default_workers():
         return os.cpu_count() or 1
 
 
-def backend(work, workers, scheduler, n_tasks, preload=()):
+def backend(work, workers, scheduler, n_tasks, preload=(), *, worker_timeout=WORKER_TIMEOUT_S, verbose=False):
     """Where `n_tasks` calls of `work` run: Dask if `scheduler`, else a pool or this process.
 
     `preload`: modules a local pool's workers import before their first task.
+    `worker_timeout` (s) and `verbose` (Dask's logging shown): for a cluster.
     """
     if scheduler is not None:
         if workers is not None:
             raise option_error("give --workers for a local run or --scheduler for a Dask cluster, not both", "--workers")
-        return Dask(work, scheduler)
+        return Dask(work, scheduler, worker_timeout=worker_timeout, verbose=verbose)
     if workers is not None and (isinstance(workers, bool) or not isinstance(workers, int) or workers < 1):
         raise option_error(f"must be a whole number >= 1, got {workers!r}", "--workers")
     workers = default_workers() if workers is None else workers

@@ -16,7 +16,7 @@ from .instrument import Instrument, TuneStore, Vary
 from .resonators import resonator_module
 from .schema import Field, Section, convert, read_section
 from .units import A4_HZ, midi_to_note, note_to_midi, short_repr
-from .yamlio import load_yaml_file
+from .yamlio import file_problem, load_yaml_file
 
 __all__ = ["load_playable", "playable_from_mapping", "load_instrument", "instrument_from_mapping",
            "is_instrument_mapping", "key_of"]
@@ -125,8 +125,11 @@ def instrument_from_mapping(mapping, *, file, overrides=None):
     values = read_section(top, _TOP)
     lines = _collect_lines(mapping)
     base_path = (Path(file).parent / values["patch"])
-    if not base_path.is_file():
+    problem = file_problem(base_path)
+    if problem == "not found":
         raise top.error("patch", f"no patch file {str(base_path)!r} (paths are relative to the instrument file)")
+    if problem:
+        raise top.error("patch", f"cannot use {short_repr(str(base_path))} as the base patch: {problem}")
     base = load_patch(base_path, overrides=overrides)
     base_mapping = load_yaml_file(base_path)
     kind = base.resonator.TYPE

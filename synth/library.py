@@ -68,9 +68,9 @@ from .modes import table_to_dict
 from .instrument_file import load_playable
 from .pipeline import partial_table
 from .schema import Field, Section, read_section
-from .units import midi_to_note, note_to_midi
+from .units import midi_to_note, note_to_midi, short_repr
 from .voicing import REFERENCE_VELOCITY, voice_patch
-from .yamlio import load_yaml_file
+from .yamlio import file_problem, load_yaml_file
 
 __all__ = [
     "LibrarySpec",
@@ -217,10 +217,13 @@ def load_library_spec(path, *, output=None):
     if not str(values["patch"]).strip():
         raise top.error("patch", "must name a patch file (YAML), relative to the spec file")
     patch_path = base / values["patch"]
-    if patch_path.is_dir():
+    problem = file_problem(patch_path)
+    if problem == "a folder":
         raise top.error("patch", f"{str(patch_path)!r} is a folder, not a patch file")
-    if not patch_path.is_file():
+    if problem == "not found":
         raise top.error("patch", f"no patch file {str(patch_path)!r} (paths are relative to the spec file)")
+    if problem:
+        raise top.error("patch", f"cannot use {short_repr(str(patch_path))} as the patch file: {problem}")
     patch = load_playable(patch_path)
     name = values["name"] or patch.name
     if mapping.get("notes") is None:
@@ -244,14 +247,14 @@ def load_library_spec(path, *, output=None):
         raise top.error("notes", f"{n_jobs} files (notes x velocities x round_robin) is more than the {MAX_JOBS} a library may hold")
     if output is not None:
         folder = Path(output)
-        if folder.exists() and not folder.is_dir():
+        if os.path.exists(folder) and not os.path.isdir(folder):  # os.path: False, not an error, for a bad name
             raise option_error(f"{output!r} exists and is not a folder", "--output")
     elif values["output"] is not None:
         if not values["output"].strip():
             raise top.error("output", "is empty: name a folder (relative to the spec file), or leave the key out "
                                       "for renders/<name> in the working folder")
         folder = Path(os.path.normpath(base / values["output"]))
-        if folder.exists() and not folder.is_dir():
+        if os.path.exists(folder) and not os.path.isdir(folder):
             raise top.error("output", f"{str(folder)!r} exists and is not a folder")
     else:
         folder = Path("renders") / name

@@ -69,7 +69,7 @@ from .midifile import MidiSong, TempoMap, read_midi, tempo_map
 from .instrument_file import load_playable
 from .patch import _RENDER_FIELDS, MEMORY_LIMIT_BYTES
 from .schema import Field, Section, convert_option, read_section
-from .units import midi_to_note
+from .units import midi_to_note, short_repr
 from .voices import (
     VoicingCache,
     pan_gains,
@@ -78,7 +78,7 @@ from .voices import (
     voice_end,
     write_song,
 )
-from .yamlio import load_yaml_file
+from .yamlio import file_problem, load_yaml_file
 
 __all__ = [
     "DEFAULT_BEND_RANGE",
@@ -326,10 +326,13 @@ def _entry(section, key, folder):
         raise child.error("patch", "is empty: name a patch file (YAML), relative to the map file")
     path = Path(values["patch"])
     path = path if path.is_absolute() else folder / path
-    if path.is_dir():
+    problem = file_problem(path)
+    if problem == "a folder":
         raise child.error("patch", f"{str(path)!r} is a folder, not a file: name the patch file (YAML) inside it")
-    if not path.is_file():
+    if problem == "not found":
         raise child.error("patch", f"patch file {str(path)!r} not found (paths are relative to the map file)")
+    if problem:
+        raise child.error("patch", f"cannot use {short_repr(str(path))} as a patch file: {problem}")
     return MapEntry(path, values["gain"], values["pan"])
 
 
@@ -368,6 +371,8 @@ def load_channel_map(path):
     render = {}
     if mapping.get("render") is not None:
         section = top.child("render")
+        if section.mapping.get("peak") is True:  # YAML reads an unquoted `true` as a boolean, as in a patch
+            section.mapping["peak"] = "true"
         render = {k: v for k, v in read_section(section, _MAP_RENDER).items() if k in section.mapping}
     return ChannelMap(channels, tracks, default, render, file, getattr(mapping, "lines", {}).get("channels"))
 
@@ -530,7 +535,7 @@ def render_midi(song_path, *, output, patch=None, map_file=None, a4_hz=None, sam
     stereo = any(entry.pan is not None for _, entry in assigned) or any(n.pan is not None for n in performance.notes)
     n_channels = 2 if stereo else 1
     if n_out * n_channels * 4 > MEMORY_LIMIT_BYTES:
-        raise RenderError(f"the song buffer would need {n_out * n_channels * 4 / 2**30:.1f} GiB "
+        raise RenderError(f"{song_path}: the song buffer would need {n_out * n_channels * 4 / 2**30:.1f} GiB "
                           f"(limit {MEMORY_LIMIT_BYTES / 2**30:.0f} GiB): lower --sample-rate or set a shorter --tail")
     buffer = np.zeros((n_out, 2) if stereo else n_out, np.float32)
     _mix(buffer, performance, assigned, voiced, cache, bar)

@@ -7,6 +7,17 @@ status carries across meta events, as tolerant readers do; a sysex event
 cancels it.  Chunks other than ``MTrk`` are skipped, as the specification
 asks of readers.  Format 2 (independent sequences) is refused.
 
+mido decodes only what synth uses: channel messages, Set Tempo and the track
+name.  Sysex and every other meta event (key and time signatures, text,
+SMPTE offset, ...) are skipped by the check, their delta times kept, so a
+malformed one that mido would reject does not stop a song whose notes are
+fine; a Set Tempo that does not hold 3 bytes is an error.
+
+Limits, checked before anything is decoded: files over :data:`MAX_MIDI_BYTES`
+and paths that are not regular files are not read; a file with more than
+:data:`MAX_MIDI_NOTES` notes or :data:`MAX_MIDI_EVENTS` events is refused
+(the walk stops at the event limit).
+
 Timing
 ------
 The arithmetic of the Standard MIDI Files 1.0 specification (part of the
@@ -30,18 +41,37 @@ import io
 import struct
 from dataclasses import dataclass
 from fractions import Fraction
-from pathlib import Path
 
 import mido
 
 from .errors import InputFileError
+from .yamlio import read_input_file
 
-__all__ = ["DEFAULT_TEMPO_US", "SMPTE_RATES", "TempoMap", "MidiSong", "tempo_map", "read_midi"]
+__all__ = ["DEFAULT_TEMPO_US", "SMPTE_RATES", "TempoMap", "MidiSong", "tempo_map", "read_midi",
+           "MAX_MIDI_BYTES", "MAX_MIDI_NOTES", "MAX_MIDI_EVENTS"]
 
 DEFAULT_TEMPO_US = 500_000  # us per quarter note before any Set Tempo (SMF 1.0: 120 BPM)
 SMPTE_RATES = {24: (24, 1), 25: (25, 1), 29: (30000, 1001), 30: (30, 1)}  # fps byte -> frames/s as (num, den)
 CHANNEL_DATA_BYTES = {0x8: 2, 0x9: 2, 0xA: 2, 0xB: 2, 0xC: 1, 0xD: 1, 0xE: 2}  # data bytes by status nibble
 USED_TYPES = frozenset({"note_on", "note_off", "control_change", "pitchwheel", "set_tempo"})
+KEPT_META = frozenset({0x03, 0x51})  # meta types handed to mido: track name, Set Tempo (the rest is skipped)
+SET_TEMPO = 0x51
+#: Most notes (note-ons with velocity > 0) a file may hold.  At 20 notes a
+#: second, a dense performance, 200 000 notes last 2 h 47 min.  A file of
+#: 200 000 notes (400 000 events) reads in 8 s, 203 MB peak RSS, nearly all of
+#: it mido's decoding, which grows with the count; the count is checked before.
+MAX_MIDI_NOTES = 200_000
+#: Most events of any kind (notes, controllers, pitch bends, meta, sysex) a
+#: file may hold: the note-ons and note-offs of MAX_MIDI_NOTES notes, 400 000,
+#: and as many again and more for controllers.  The check walks about 700 000
+#: events a second and stops here (a 16 MB file of 2.7 million notes is
+#: refused in 1.4 s); a file at the limit reads in 17 s, 465 MB peak RSS
+#: (measured: 200 000 notes and 600 000 controllers).
+MAX_MIDI_EVENTS = 1_000_000
+#: Largest MIDI file read: a file at the event limit, a million channel
+#: messages of at most 7 bytes (4-byte delta, status, 2 data bytes), is under
+#: 7 MB; 16 MiB leaves room for sysex and text, and bounds the read's memory.
+MAX_MIDI_BYTES = 16 * 2**20
 
 
 @dataclass(frozen=True)
@@ -132,14 +162,7 @@ def _file_error(file, message):
 
 
 def _read_file(path):
-    try:
-        return Path(path).read_bytes()
-    except FileNotFoundError:
-        raise InputFileError("file not found", file=str(path)) from None
-    except IsADirectoryError:
-        raise InputFileError("is a folder, not a MIDI file", file=str(path)) from None
-    except OSError as error:
-        raise InputFileError(f"cannot read: {error.strerror or error}", file=str(path)) from None
+    return read_input_file(path, limit=MAX_MIDI_BYTES, kind="MIDI", folder_hint="is a folder, not a MIDI file")
 
 
 def _scan_chunks(data, file):
@@ -181,9 +204,49 @@ def _varlen(data, position, end):
     raise ValueError("a variable-length number runs over 4 bytes")
 
 
-def _check_track(data, start, end, number, file):
-    """Walk the events of one track; raise InputFileError naming the byte where it breaks."""
+def _varlen_bytes(value):
+    """The variable-length quantity of `value` >= 0 (as many bytes as it needs; mido reads any length)."""
+    out = [value & 0x7F]
+    value >>= 7
+    while value:
+        out.append(0x80 | (value & 0x7F))
+        value >>= 7
+    return bytes(reversed(out))
+
+
+class _Tally:
+    """Events and notes counted over every track of a file, against MAX_MIDI_EVENTS and MAX_MIDI_NOTES."""
+
+    def __init__(self, file):
+        self.file, self.events, self.notes = file, 0, 0
+
+    def too_many_events(self):
+        """The error once ``events`` has passed MAX_MIDI_EVENTS (the walk stops there)."""
+        if self.notes > MAX_MIDI_NOTES:
+            return _file_error(self.file, f"holds more than {MAX_MIDI_NOTES} notes ({self.notes} in its first "
+                                          f"{MAX_MIDI_EVENTS} events): split the song into shorter files")
+        return _file_error(self.file, f"holds more than {MAX_MIDI_EVENTS} events (notes, controllers, meta "
+                                      "events), more than synth reads from one file: split the song into "
+                                      "shorter files")
+
+    def check_notes(self):
+        if self.notes > MAX_MIDI_NOTES:
+            raise _file_error(self.file, f"holds {self.notes} notes, more than the {MAX_MIDI_NOTES} synth plays "
+                                         "from one file: split the song into shorter files")
+
+
+def _check_track(data, start, end, number, file, tally):
+    """Walk the events of one track; raise InputFileError naming the byte where it breaks.
+
+    Returns the body of an MTrk chunk holding only the events synth uses
+    (channel messages, each with its status byte, Set Tempo and the track
+    name), the delta times of skipped events carried to the next kept one,
+    and an end of track at the tick of the track's last event.  Counts every
+    event and note into `tally`.
+    """
     position, running, cancelled = start, None, False
+    kept, pending = bytearray(), 0  # pending: ticks since the last kept event
+    events, notes, most_events = tally.events, tally.notes, MAX_MIDI_EVENTS
 
     def fail(at, what):
         raise InputFileError(f"track {number}, byte {at}: {what}", file=file)
@@ -196,13 +259,26 @@ def _check_track(data, start, end, number, file):
             fail(at, f"{error}: the track is corrupt")
         if read is None or read[1] >= end:
             fail(at, "the track ends inside an event: the file is truncated or corrupt")
+        events += 1
+        if events > most_events:
+            tally.events, tally.notes = events, notes
+            raise tally.too_many_events()
+        pending += read[0]
         position = read[1]
         status = data[position]
         if status in (0xF0, 0xF7, 0xFF):
             head = position + (2 if status == 0xFF else 1)
-            read = _varlen(data, head, end) if head <= end else None
+            try:
+                read = _varlen(data, head, end) if head <= end else None
+            except ValueError as error:  # the event's length itself is corrupt
+                fail(at, f"{error}: the track is corrupt")
             if read is None or read[1] + read[0] > end:
                 fail(at, "a sysex or meta event runs past the end of its track: the file is truncated or corrupt")
+            if status == 0xFF and data[position + 1] in KEPT_META:
+                if data[position + 1] == SET_TEMPO and read[0] != 3:
+                    fail(at, f"a Set Tempo meta event holds {read[0]} bytes, not 3: the file is corrupt")
+                kept += _varlen_bytes(pending) + data[position : read[1] + read[0]]
+                pending = 0
             position = read[1] + read[0]
             if status != 0xFF:
                 running, cancelled = None, True
@@ -224,16 +300,27 @@ def _check_track(data, start, end, number, file):
         for k in range(first, first + count):
             if data[k] >= 0x80:
                 fail(k, f"byte 0x{data[k]:02x} inside a channel message is above 127: the file is corrupt")
+        if running >> 4 == 0x9 and data[first + 1] > 0:
+            notes += 1
+        if pending < 0x80:
+            kept.append(pending)
+        else:
+            kept += _varlen_bytes(pending)
+        kept.append(running)
+        kept += data[first : first + count]
+        pending = 0
         position = first + count
+    tally.events, tally.notes = events, notes
+    return bytes(kept + _varlen_bytes(pending) + b"\xff\x2f\x00")
 
 
-def _decode_track(data, start, end, division, number, file):
-    """The mido track of one (checked) MTrk chunk."""
-    blob = struct.pack(">4sLHHh", b"MThd", 6, 0, 1, division) + data[start - 8 : end]
+def _decode_track(body, division, number, file):
+    """The mido track of one checked and cleaned MTrk body (see :func:`_check_track`)."""
+    blob = struct.pack(">4sLHHh4sL", b"MThd", 6, 0, 1, division, b"MTrk", len(body)) + body
     try:
         return mido.MidiFile(file=io.BytesIO(blob)).tracks[0]
-    except Exception as error:  # noqa: BLE001 - any mido failure is a file the user must fix
-        raise InputFileError(f"track {number} cannot be decoded ({type(error).__name__}: {error})", file=file) from None
+    except Exception:  # noqa: BLE001 - the check should have caught it; still a file the user must fix
+        raise InputFileError(f"track {number} cannot be decoded: the file is corrupt", file=file) from None
 
 
 def read_midi(path):
@@ -248,6 +335,8 @@ def read_midi(path):
     InputFileError
         Missing, unreadable, truncated or corrupt files, format 2, bad
         division or tempo; the message names the file, track and byte.
+        Paths that are not regular files, files over MAX_MIDI_BYTES and
+        files with more than MAX_MIDI_NOTES notes or MAX_MIDI_EVENTS events.
     """
     file = str(path)
     data = _read_file(path)
@@ -257,11 +346,14 @@ def read_midi(path):
                                 "format 0 or 1 file")
     if fmt not in (0, 1):
         raise _file_error(file, f"unknown MIDI file format {fmt} (allowed: 0, 1)")
+    tally = _Tally(file)
+    bodies = [_check_track(data, start, end, number, file, tally) for number, (start, end) in enumerate(chunks, 1)]
+    tally.check_notes()
+    del data
     events, names, end_tick = [], [], 0
-    for number, (start, end) in enumerate(chunks, start=1):
-        _check_track(data, start, end, number, file)
+    for number, body in enumerate(bodies, start=1):
         tick, name = 0, None
-        for message in _decode_track(data, start, end, division, number, file):
+        for message in _decode_track(body, division, number, file):
             tick += message.time
             if message.type == "track_name" and name is None:
                 name = message.name

@@ -54,10 +54,27 @@ MIN_DURATION_S = 1e-3
 #: Renders estimated to need more memory than this are refused (a workstation's
 #: memory; common practice for a desktop machine, not a measured limit).
 MEMORY_LIMIT_BYTES = 16 * 2**30
-#: Working bytes per output sample (float32 signal, float64 while normalising,
-#: the converted output) and per mode (table, report and engine state).
-BYTES_PER_SAMPLE = 16
+#: Peak working bytes per output sample of ``synth render`` (the float32 signal,
+#: its normalised copy, the float64 scratch and integers of the conversion, the
+#: loudness meter's float64 copies).  Measured as peak RSS of a render minus
+#: that of the same render at --duration 0.001, each in its own process:
+#:   .venv/bin/python -c "import resource,sys; from synth.cli import main; main(sys.argv[1:]);
+#:   print(resource.getrusage(resource.RUSAGE_SELF).ru_maxrss)" render PATCH -o /tmp/o.wav -q
+#:   --sample-rate 768000 --duration 4        (and 48000 x 40 s; 20 s and 2 s for the slopes)
+#: on patches/string-bass-steel-a1, partials-bell-invented and
+#: plate-aluminium-gong-disc, 24-bit WAV (16- and 32-bit measured lower):
+#: 67.7-68.7 bytes a sample at 48 kHz x 40 s, 63.4-65.3 at 768 kHz x 4 s;
+#: slopes 66.7-67.0 (48 kHz, 20 -> 40 s) and 58.8-58.9 (768 kHz, 2 -> 4 s).
+#: 80 is the largest (68.7) plus about 15 %.
+BYTES_PER_SAMPLE = 80
+#: Working bytes per computed mode (table, report and engine state); measured
+#: about 870 bytes a mode (max_modes 256 -> 20000 at 768 kHz x 0.2 s: +17 MB).
 BYTES_PER_MODE = 4096
+#: Fixed working memory of a render whatever its length (filters, engine
+#: blocks, scratch buffers): the intercepts of the slopes above were about 3 MB
+#: at 48 kHz and 20 MB at 768 kHz; 32 MiB covers them, so short renders are
+#: covered too (tests/test_input_limits.py measures one of 1 s at 768 kHz).
+RENDER_BASE_BYTES = 32 * 2**20
 
 
 @dataclass(frozen=True)
@@ -274,6 +291,15 @@ def material_from(section, key="material"):
     raise section.error(key, f"must be a material name ({', '.join(sorted(MATERIALS))}) or a mapping of constants, got {short_repr(value)}")
 
 
+#: Fractions closer than this to 0 or 1 are the end (or centre) itself: a point 1e-45 of the length
+#: from an end would otherwise scale a pluck's weights by 1 / position and overflow.
+POSITION_SNAP = 1e-9
+
+
+def _snapped(fraction):
+    return 0.0 if fraction < POSITION_SNAP else 1.0 if fraction > 1.0 - POSITION_SNAP else fraction
+
+
 def _position(section, key, style, default):
     """Read a position of the given style (see resonators.common)."""
     if key not in section.mapping:
@@ -281,17 +307,17 @@ def _position(section, key, style, default):
     value = section.mapping[key]
     try:
         if style == "fraction":
-            return Point("fraction", (convert(_POSITION_1D, value),))
+            return Point("fraction", (_snapped(convert(_POSITION_1D, value)),))
         if style == "xy":
             if not isinstance(value, list) or len(value) != 2:
                 raise ValueError(f"must be [x, y], two fractions of the width and height (0..1), got {short_repr(value)}")
-            return Point("xy", tuple(convert(_POSITION_1D, v) for v in value))
+            return Point("xy", tuple(_snapped(convert(_POSITION_1D, v)) for v in value))
         if style == "polar":
             if not isinstance(value, dict):
                 raise ValueError(f"must be {{radius: fraction 0..1, angle: degrees}}, got {short_repr(value)}")
             polar = Section(value, file=section.file, path=section.key(key))
             values = read_section(polar, _POLAR_FIELDS)
-            return Point("polar", (values["radius"], values["angle"]))
+            return Point("polar", (_snapped(values["radius"]), values["angle"]))
         raise ValueError("this resonator takes no positions; leave the key out")
     except ValueError as error:
         if isinstance(error, PatchError):
@@ -456,8 +482,8 @@ def _collect_lines(mapping, prefix=""):
 
 
 def estimate_render_bytes(duration, sample_rate, n_modes):
-    """Rough working memory (bytes) of a render: samples and modes."""
-    return float(duration) * float(sample_rate) * BYTES_PER_SAMPLE + n_modes * BYTES_PER_MODE
+    """Peak working memory (bytes) of a render: a fixed part, samples and modes (see BYTES_PER_SAMPLE)."""
+    return RENDER_BASE_BYTES + float(duration) * float(sample_rate) * BYTES_PER_SAMPLE + n_modes * BYTES_PER_MODE
 
 
 def _check_size(patch, overrides):

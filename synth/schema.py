@@ -26,7 +26,9 @@ from .units import UNITS, parse_pitch, parse_quantity, short_repr
 
 __all__ = ["Field", "Section", "read_section", "check_keys", "convert", "convert_option", "KIND_BOUNDS", "SLUG"]
 
-SLUG = re.compile(r"^[A-Za-z0-9][A-Za-z0-9_-]{0,79}$")
+# \A and \Z, not ^ and $: "$" also matches before a final newline, which would let
+# "abc\n" through and put a newline in an output file name.
+SLUG = re.compile(r"\A[A-Za-z0-9][A-Za-z0-9_-]{0,79}\Z")
 
 #: Physical range (low, high) of every field of a unit kind, in SI units
 #: (None: no bound on that side).  Generous on purpose: the widest span a

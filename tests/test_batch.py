@@ -396,8 +396,13 @@ def test_absolute_scale_keeps_gain_one(tmp_path):
 # Ctrl-C on a real process
 
 
-def test_sigint_leaves_whole_files_and_a_true_manifest(tmp_path):
-    """Signal ``python -m synth.cli batch`` once its first file appears; then finish with a re-run."""
+@pytest.mark.parametrize("signum, status", [(signal.SIGINT, 130), (signal.SIGTERM, 143)], ids=["SIGINT", "SIGTERM"])
+def test_signal_leaves_whole_files_and_a_true_manifest(tmp_path, signum, status):
+    """Signal ``python -m synth.cli batch`` once its first file appears; then finish with a re-run.
+
+    SIGTERM (what ``timeout``, CI cancellation and container stops send) behaves as Ctrl-C does;
+    ``communicate`` returning at all shows no worker, fork server or resource tracker kept the
+    caller's pipes open."""
     rig = RIG.replace("duration: 0.5 s", "duration: 3 s").replace("sample_rate: 16000", "sample_rate: 8000")
     spec = make_spec(tmp_path, "patch: rig.yaml\nname: rig\noutput: lib\nnotes: {from: A1, to: A4}\nvelocities: [40, 100]\n", rig)
     n_files = 37 * 2
@@ -407,9 +412,9 @@ def test_sigint_leaves_whole_files_and_a_true_manifest(tmp_path):
     out = tmp_path / "lib"
     while not list(out.glob("*.wav")) and process.poll() is None:
         time.sleep(0.002)
-    process.send_signal(signal.SIGINT)
+    process.send_signal(signum)
     stdout, stderr = process.communicate(timeout=120)
-    assert process.returncode == 130, stderr
+    assert process.returncode == status, stderr
     assert "synth: interrupted:" in stderr and "Traceback" not in stderr
     assert [p.name for p in out.iterdir() if ".part" in p.name] == []
     on_disk = wavs(out)

@@ -34,7 +34,9 @@ RESONATOR_TYPES = tuple(_MODULES)
 
 
 def resonator_module(kind):
-    """The module implementing resonator type `kind` (ImportError if not built yet)."""
+    """The module implementing resonator type `kind` (KeyError for a type that is not one, even unhashable)."""
+    if not isinstance(kind, str) or kind not in _MODULES:
+        raise KeyError(kind)
     return importlib.import_module(f".{_MODULES[kind]}", __name__)
 
 
