@@ -135,9 +135,12 @@ def dither_gain(n, *, sample_rate, frames_after=0):
     quiet = max(int(round(QUIET_TAIL_S * sample_rate)), 1)
     if frames_after >= 2 * quiet:
         return None
-    to_end = np.arange(n, 0, -1, dtype=np.float64) + frames_after  # frames from each one to the end, >= 1
+    gain = np.ones(n)  # 1 wherever the end is 2 x QUIET_TAIL_S away or more (0.5 - 0.5 cos(pi) == 1 exactly)
+    start = max(0, n + frames_after - 2 * quiet)  # only the last 2 x QUIET_TAIL_S are computed
+    to_end = np.arange(n - start, 0, -1, dtype=np.float64) + frames_after  # frames from each one to the end, >= 1
     rise = np.clip((to_end - quiet) / quiet, 0.0, 1.0)
-    return 0.5 - 0.5 * np.cos(np.pi * rise)
+    gain[start:] = 0.5 - 0.5 * np.cos(np.pi * rise)
+    return gain
 
 
 def quantise(signal, bit_depth, *, seed=DITHER_SEED, dither=None):

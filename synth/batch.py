@@ -213,7 +213,7 @@ def _render_sample(arrays, request, gain, seed, target=None, sampler=None):
     np.multiply(signal, gain, out=scaled, dtype=np.float64)
     if request.absolute:
         normalise(scaled, peak_db=None, bit_depth=bit_depth)  # raises RenderError if it would clip
-    data = quantise(scaled, bit_depth, seed=seed, dither=dither_gain(n, sample_rate=rate))
+    data = quantise(scaled, bit_depth, seed=seed, dither=dither_gain(n, sample_rate=rate) if bit_depth == 16 else None)
     loudness, note = loudness_lufs(scaled, rate)
     result = {"peak_dbfs": peak_dbfs(scaled), "true_peak_dbtp": true_peak_dbtp(scaled, rate),
               "loudness_lufs": loudness, "loudness_note": note, "duration_s": n / rate,

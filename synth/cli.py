@@ -99,7 +99,7 @@ def cmd_modes(args):
     if args.csv:
         check_output_file(args.csv, suffixes=(".csv",), inputs=(args.patch,), key="--csv")
     patch, _ = _load_key(args)
-    table = partial_table(patch)
+    table = partial_table(patch, onset=False)  # a report: the onset samples are not needed
     if args.csv:
         with atomic_output(Path(args.csv), key="--csv") as tmp:
             tmp.write_text(table_to_csv(table), encoding="utf-8")

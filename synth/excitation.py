@@ -80,6 +80,7 @@ MEASURES = ("displacement", "velocity", "acceleration")
 DEFAULT_RELEASE_TIME_S = 0.2e-3
 #: Onset samples evaluated at a time (rows of an onset x modes array).
 ONSET_BLOCK = 512
+ONSET_ELEMENTS = 2**18  # samples x modes of one onset block (a few MiB a temporary, not 160 MiB for 20,000 modes)
 _SMALL = 1e-6  # |z t| below which (1 - e^-zt) / z is summed as a series
 
 
@@ -254,8 +255,9 @@ def onset_samples(pulse, coefficient, s, *, measures, reference_omega, sample_ra
     s = np.asarray(s, dtype=complex)
     coefficient = np.asarray(coefficient)  # real, or complex for coupled sub-modes (synth.coupling)
     weight = coefficient * (s / reference_omega) ** k
-    for start in range(0, n, ONSET_BLOCK):
-        t = np.arange(start, min(start + ONSET_BLOCK, n))[:, None] / sample_rate
+    block = max(1, min(ONSET_BLOCK, ONSET_ELEMENTS // len(s)))  # bounded memory for thousands of modes
+    for start in range(0, n, block):
+        t = np.arange(start, min(start + block, n))[:, None] / sample_rate
         values = np.imag(weight[None, :] * np.exp(s[None, :] * t) * pulse.partial(s[None, :], t))
         y = values.sum(axis=1)
         if k == 1 and np.iscomplexobj(coefficient):  # h(0) = Im[sum c]: 0 for real c, ~0 for coupled sub-modes

@@ -294,9 +294,10 @@ class PartialTable:
         Extra per-mode columns from the resonator.
     parameters : dict
     warnings : tuple of str
-    onset : ndarray [shape=(n,)], float64
+    onset : ndarray [shape=(n,)], float64, or None
         The signal's first n samples while the excitation's force acts (at
         the render's sample rate); the modes above describe it from sample n on.
+        None in a report's table, made without it (``partial_table(..., onset=False)``).
     sample_rate : float or None, Hz
         The rate the table was made for (Nyquist cut, onset).
     """

@@ -131,7 +131,7 @@ def _coupled(patch, modes, keep, kept, t60, fundamental, warnings):
                       mix=np.asarray(coupled.weight)[below])
 
 
-def weigh(patch, unweighted):
+def weigh(patch, unweighted, *, onset=True):
     """The second half of :func:`partial_table`: the excitation's pulse, the pickup, the levels.
 
     Each mode's displacement response to the excitation's unit force
@@ -140,6 +140,9 @@ def weigh(patch, unweighted):
     transform at the mode's complex frequency and the pickup's measure:
     the amplitude and phase of the damped sinusoid the mode is once the force
     is over, and the onset samples while it acts (see :mod:`synth.excitation`).
+
+    With `onset` False the onset is not computed (``table.onset`` is None): a
+    report's table, which is never rendered (``synth modes``, ``synth range``).
 
     Raises
     ------
@@ -185,8 +188,11 @@ def weigh(patch, unweighted):
             f"nothing would sound: the {key.split('.')[0]} sits on a node of every mode below Nyquist",
         )
     audible = amplitude > 0
-    onset = onset_samples(pulse, coefficient[audible], s[audible], measures=patch.pickup.measures,
-                          reference_omega=reference, sample_rate=sample_rate)
+    if onset:
+        onset = frozen_array(onset_samples(pulse, coefficient[audible], s[audible], measures=patch.pickup.measures,
+                                           reference_omega=reference, sample_rate=sample_rate))
+    else:
+        onset = None
     with np.errstate(divide="ignore"):
         level_db = np.where(null, np.nan, 20.0 * np.log10(np.maximum(amplitude, 1e-300) / peak))
     return PartialTable(
@@ -202,7 +208,7 @@ def weigh(patch, unweighted):
         columns={k: v for k, v in kept.columns.items() if k != "t60_s"},
         parameters={**kept.parameters, **_excitation_parameters(patch)},
         warnings=unweighted.warnings,
-        onset=frozen_array(onset),
+        onset=onset,
         sample_rate=float(sample_rate),
     )
 
@@ -218,7 +224,7 @@ def _excitation_parameters(patch):
     return out
 
 
-def partial_table(patch, *, modes=None, detune_cents=0.0, cache=None):
+def partial_table(patch, *, modes=None, detune_cents=0.0, cache=None, onset=True):
     """The partials `patch` renders: weighted, damped, below Nyquist.
 
     Parameters
@@ -242,7 +248,7 @@ def partial_table(patch, *, modes=None, detune_cents=0.0, cache=None):
     object at many strengths (MIDI velocities) keep the first and call the
     second per strength.
     """
-    return weigh(patch, unweighted_partials(patch, modes=modes, detune_cents=detune_cents, cache=cache))
+    return weigh(patch, unweighted_partials(patch, modes=modes, detune_cents=detune_cents, cache=cache), onset=onset)
 
 
 def _all_above_nyquist(patch, lowest_hz, nyquist):

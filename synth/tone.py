@@ -83,6 +83,8 @@ class Tone:
     @classmethod
     def from_table(cls, table):
         """The audible modes and the onset of a :class:`~synth.modes.PartialTable`."""
+        if table.onset is None:
+            raise ValueError("this table was made for a report, without its onset (partial_table(..., onset=True))")
         keep = table.amplitude > 0
         modes = (frozen_array(values[keep]) for values in (table.frequency_hz, table.amplitude, table.phase, table.t60_s))
         return cls(*modes, frozen_array(table.onset), float(table.fundamental_hz), tuple(table.warnings))

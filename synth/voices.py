@@ -24,6 +24,8 @@ and the chunked, normalised writing of the song buffer.
 from __future__ import annotations
 
 import math
+from dataclasses import replace
+
 import numpy as np
 
 from .audio import (
@@ -39,6 +41,7 @@ from .audio import (
 )
 from .damping import LN1000
 from .engine import render_modes
+from .modes import frozen_array
 from .pipeline import unweighted_partials, weigh
 from .tone import Tone, decay_samples
 from .wavmeta import needs_rf64, zero_peak_timestamp
@@ -96,6 +99,7 @@ class VoicingCache:
         self.solves = 0
         self._tones = {}
         self._notes = {}  # (patch_index, note) -> unweighted partials: shared by every velocity
+        self._weighed_notes = {}  # (patch_index, note, a4) -> (Tone, strength): scaled for other velocities
 
     def tone(self, patch_index, note, velocity):
         """The :class:`Tone` of MIDI `note` (0..127) at `velocity` (1..127).
@@ -116,9 +120,25 @@ class VoicingCache:
             if unweighted is None:
                 unweighted = self._notes[key[:2]] = unweighted_partials(voiced)
                 self.solves += 1
-            tone = Tone.from_table(weigh(voiced, unweighted))
+            tone = self._weighed(key, voiced, unweighted)
             self._tones[key] = tone
         return tone
+
+    def _weighed(self, key, voiced, unweighted):
+        """The Tone of `voiced`; where velocity changes only the strength (a pluck or an impulse: the
+        pulse's time course does not move), the note's first weighing is scaled, not repeated."""
+        if voiced.excitation.kind == "strike":  # contact time moves with velocity: a pulse of its own
+            return Tone.from_table(weigh(voiced, unweighted))
+        first = self._weighed_notes.get(key[:2] + key[3:])
+        if first is None:
+            tone = Tone.from_table(weigh(voiced, unweighted))
+            self._weighed_notes[key[:2] + key[3:]] = (tone, voiced.excitation.strength)
+            return tone
+        tone, strength = first
+        if voiced.excitation.strength == strength:
+            return tone
+        scale = voiced.excitation.strength / strength  # amplitudes and onset are linear in the strength
+        return replace(tone, amplitude=frozen_array(tone.amplitude * scale), onset=frozen_array(tone.onset * scale))
 
     def release_t60(self, patch_index, note):
         """The damper's T60 (s, or None: no dampers) of MIDI `note` on patch `patch_index` (an instrument's key's own)."""

@@ -282,7 +282,7 @@ def test_default_folder_blocked_by_a_file(work, capsys):
     ids=lambda e: type(e).__name__,
 )
 def test_numeric_failure_is_one_line(work, capsys, monkeypatch, error):
-    def fail(patch):
+    def fail(patch, **options):
         raise error
 
     monkeypatch.setattr(pipeline, "partial_table", fail)  # the command imports it when it runs
@@ -293,7 +293,7 @@ def test_numeric_failure_is_one_line(work, capsys, monkeypatch, error):
 
 
 def test_real_bugs_still_raise(work, monkeypatch):
-    def bug(patch):
+    def bug(patch, **options):
         raise TypeError("a bug in synth")
 
     monkeypatch.setattr(pipeline, "partial_table", bug)
