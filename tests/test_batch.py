@@ -31,7 +31,8 @@ import numpy as np
 import pytest
 import scipy.signal
 
-from synth.batch import _measure_peak, build_library
+from synth.batch import build_library
+from synth.libwork import measure_patch_peak as _measure_peak
 from synth.cli import main
 from synth.libindex import LOUDNESS_METER, key_ranges, velocity_ranges
 from synth.library import (
