@@ -305,7 +305,8 @@ class atomic_output:
         self.tmp = None
 
     def _error(self, error):
-        reason = getattr(error, "strerror", None) or str(error).strip().splitlines()[-1][:200] or type(error).__name__
+        lines = str(error).strip().splitlines()
+        reason = getattr(error, "strerror", None) or (lines[-1][:200] if lines else type(error).__name__)
         message = f"cannot write {str(self.path)!r}: {reason}"
         if self.key is None:
             return RenderError(message)

@@ -35,11 +35,11 @@ How a run goes
    atomic writes still leave no partial file.  The manifest is also rewritten
    during the run after every small group of files (at most ~10% of the
    run's time goes to it), so even a SIGKILL loses little.
+6. A failed job (a pitch the object cannot reach, every mode above Nyquist,
+   ...) is reported and the others go on; the exit status is then 1.
 7. **One run per folder**: a run holds an advisory lock (``flock``) on its
    output folder, released by the kernel when the process ends; a second run
    on the folder is refused, naming the pid.
-6. A failed job (a pitch the object cannot reach, every mode above Nyquist,
-   ...) is reported and the others go on; the exit status is then 1.
 """
 from __future__ import annotations
 

@@ -409,13 +409,13 @@ def main(argv=None):
     for attr in ("duration", "sample_rate", "max_modes", "bit_depth"):
         if hasattr(args, attr):
             setattr(args, attr, _number_or_text(getattr(args, attr)))
+    from .audio import output_path
+    from .signals import Terminated, exit_status, install
+
     for attr in ("output", "csv"):  # output paths are read lexically: out/../x.wav is x.wav
         value = getattr(args, attr, None)
-        if isinstance(value, str) and value and "\0" not in value:
-            from .audio import output_path
-
+        if isinstance(value, str) and value and "\0" not in value:  # a NUL is refused by check_output_file
             setattr(args, attr, str(output_path(value)))
-    from .signals import exit_status, install
 
     install()  # SIGTERM unwinds like Ctrl-C (synth/signals.py)
     try:
@@ -434,10 +434,9 @@ def main(argv=None):
         print(f"synth: error: cannot compute this request ({_short(error)}): {NUMERIC_HINT}", file=sys.stderr)
         return 2
     except KeyboardInterrupt as interrupt:  # Ctrl-C, or SIGTERM (signals.Terminated)
-        status = exit_status(interrupt)
-        what = "terminated" if status != 130 else "interrupted"
+        what = "terminated" if isinstance(interrupt, Terminated) else "interrupted"
         print(f"synth: {what}; nothing half-written was left behind", file=sys.stderr)
-        return status
+        return exit_status(interrupt)
 
 
 if __name__ == "__main__":  # pragma: no cover

@@ -36,13 +36,12 @@ import copy
 import hashlib
 import json
 import math
-import os
 from dataclasses import asdict, dataclass, replace
 from pathlib import Path
 
 import numpy as np
 
-from .errors import PatchError
+from .errors import PatchError, RenderError
 from .resonators import UnreachablePitch, resonator_module
 from .schema import convert
 from .solvecache import DEFAULT_CACHE
@@ -486,14 +485,14 @@ class TuneStore:
         self._entries[key] = entry
         if not self.writable:
             return
-        tmp = self.path.with_name(f".{self.path.name}.{os.getpid()}.part")
+        from .audio import atomic_output
+
         try:
-            tmp.write_text(json.dumps({"version": self.VERSION, "entries": self._entries}, sort_keys=True),
-                           encoding="utf-8")
-            os.replace(tmp, self.path)
-        except OSError:
+            with atomic_output(self.path) as tmp:
+                tmp.write_text(json.dumps({"version": self.VERSION, "entries": self._entries}, sort_keys=True),
+                               encoding="utf-8")
+        except RenderError:  # a folder that cannot be written: the fits stay in memory
             self.writable = False
-            tmp.unlink(missing_ok=True)
 
 
 def _plain(value):

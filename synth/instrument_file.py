@@ -15,7 +15,7 @@ from pathlib import Path
 from .instrument import Instrument, TuneStore, Vary
 from .resonators import resonator_module
 from .schema import Field, Section, convert, read_section
-from .units import A4_HZ, midi_to_note, note_to_midi, short_repr
+from .units import A4_HZ, midi_number, midi_to_note, short_repr
 from .yamlio import file_problem, load_yaml_file
 
 __all__ = ["load_playable", "playable_from_mapping", "load_instrument", "instrument_from_mapping",
@@ -97,28 +97,12 @@ def key_of(value):
     """MIDI key of a note name (``C2``) or a MIDI number (an int, or its digits); ValueError otherwise."""
     if isinstance(value, str) and value.strip().isdigit():
         value = int(value.strip())
-    return _midi_of(value)
-
-
-def _midi_of(value):
-    """MIDI key of a note name (``C2``) or a MIDI number; ValueError otherwise."""
-    if isinstance(value, bool):
-        raise ValueError(f"{value!r} is not a key")
-    if isinstance(value, int):
-        if not 0 <= value <= 127:
-            raise ValueError(f"MIDI key {value} is outside 0..127")
-        return value
-    if isinstance(value, str):
-        midi = note_to_midi(value.strip())
-        if not 0 <= midi <= 127:
-            raise ValueError(f"{value} is outside the MIDI keys C-1..G9")
-        return midi
-    raise ValueError(f"{short_repr(value)} is not a key: give a note name such as C2 or F#4")
+    return midi_number(value)
 
 
 def instrument_from_mapping(mapping, *, file, overrides=None):
     """Validate an instrument file's parsed mapping into an :class:`Instrument`."""
-    from .patch import _collect_lines, load_patch
+    from .patch import _collect_lines, patch_from_mapping
     from .tuning import TuningError, parse_ratios
 
     top = Section(mapping, file=file)
@@ -130,8 +114,8 @@ def instrument_from_mapping(mapping, *, file, overrides=None):
         raise top.error("patch", f"no patch file {str(base_path)!r} (paths are relative to the instrument file)")
     if problem:
         raise top.error("patch", f"cannot use {short_repr(str(base_path))} as the base patch: {problem}")
-    base = load_patch(base_path, overrides=overrides)
-    base_mapping = load_yaml_file(base_path)
+    base_mapping = load_yaml_file(base_path)  # read and parsed once: the base patch and every key's mapping
+    base = patch_from_mapping(base_mapping, file=str(base_path), overrides=overrides)
     kind = base.resonator.TYPE
     module = resonator_module(kind)
 
@@ -140,7 +124,7 @@ def instrument_from_mapping(mapping, *, file, overrides=None):
     keys = {}
     for end in ("from", "to"):
         try:
-            keys[end] = _midi_of(bounds[end])
+            keys[end] = midi_number(bounds[end])
         except ValueError as error:
             raise span.error(end, str(error)) from None
     if keys["to"] < keys["from"]:
@@ -251,7 +235,7 @@ def _read_anchors(section, key, anchors, field, low, high):
     points = []
     for anchor, value in anchors.items():
         try:
-            midi = _midi_of(anchor)
+            midi = midi_number(anchor)
         except ValueError as error:
             raise anchor_section.error(anchor, str(error)) from None
         if not low <= midi <= high:

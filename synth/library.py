@@ -60,7 +60,6 @@ from .errors import PatchError, option_error
 from .libindex import (
     FORMAT_VERSION,
     MIDI_HIGH,
-    MIDI_LOW,
     VELOCITY_HIGH,
     VELOCITY_LOW,
 )
@@ -68,7 +67,7 @@ from .modes import table_to_dict
 from .instrument_file import load_playable
 from .pipeline import partial_table
 from .schema import Field, Section, read_section
-from .units import midi_to_note, note_to_midi, short_repr
+from .units import midi_number, midi_to_note, short_repr
 from .voicing import REFERENCE_VELOCITY, voice_patch
 from .yamlio import file_problem, load_yaml_file
 
@@ -271,21 +270,6 @@ def load_library_spec(path, *, output=None):
     )
 
 
-def _midi_of(value):
-    """MIDI number of a note name or a whole number; ValueError says what is allowed."""
-    if isinstance(value, bool):
-        raise ValueError(f"{value!r} is not a note")
-    if isinstance(value, int):
-        midi = value
-    elif isinstance(value, str):
-        midi = note_to_midi(value)
-    else:
-        raise ValueError(f"{value!r} is not a note name (e.g. A4, C#3, Bb1) or a MIDI number")
-    if not MIDI_LOW <= midi <= MIDI_HIGH:
-        raise ValueError(f"{value!r} is MIDI note {midi}, outside the MIDI range {MIDI_LOW}..{MIDI_HIGH} (C-1..G9)")
-    return midi
-
-
 def _notes(top, value):
     """((text, midi), ...) sorted by MIDI number, from a list or a {from, to, step} range."""
     line = top.line("notes")
@@ -295,7 +279,7 @@ def _notes(top, value):
         ends = {}
         for key in ("from", "to"):
             try:
-                ends[key] = _midi_of(fields[key])
+                ends[key] = midi_number(fields[key])
             except ValueError as error:
                 raise section.error(key, str(error)) from None
         if ends["from"] > ends["to"]:
@@ -310,7 +294,7 @@ def _notes(top, value):
     notes, seen = [], {}
     for i, item in enumerate(value):
         try:
-            midi = _midi_of(item)
+            midi = midi_number(item)
         except ValueError as error:
             raise PatchError(str(error), file=top.file, line=line, key=f"notes[{i}]") from None
         if midi in seen:

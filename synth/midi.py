@@ -371,8 +371,6 @@ def load_channel_map(path):
     render = {}
     if mapping.get("render") is not None:
         section = top.child("render")
-        if section.mapping.get("peak") is True:  # YAML reads an unquoted `true` as a boolean, as in a patch
-            section.mapping["peak"] = "true"
         render = {k: v for k, v in read_section(section, _MAP_RENDER).items() if k in section.mapping}
     return ChannelMap(channels, tracks, default, render, file, getattr(mapping, "lines", {}).get("channels"))
 

@@ -423,8 +423,6 @@ def patch_from_mapping(mapping, *, file="<patch>", overrides=None):
     if damp_values["t60_high"] is not None and damp_values["t60_high"] > damp_values["t60"]:
         raise sections["damping"].error("t60_high", f"must not exceed t60 ({damp_values['t60']:g} s): higher partials decay faster")
     render_section = sections["render"]
-    if render_section.mapping.get("peak") is True:  # YAML reads an unquoted `true` as a boolean
-        render_section.mapping["peak"] = "true"
     render_values = read_section(render_section, _RENDER_FIELDS)
     render = RenderSettings(**render_values)
     lines = _collect_lines(mapping)

@@ -204,7 +204,10 @@ _NO_MATCH = object()
 def _choice(choices, value):
     """The element of `choices` that `value` names (24.0 and "24" name 24), else _NO_MATCH."""
     if isinstance(value, bool):
-        return value if any(c is value for c in choices) else _NO_MATCH
+        if any(c is value for c in choices):
+            return value
+        word = "true" if value else "false"  # YAML reads an unquoted true / false as a boolean
+        return word if word in choices else _NO_MATCH
     for choice in choices:
         if type(choice) is type(value) and choice == value:
             return choice

@@ -21,6 +21,7 @@ __all__ = [
     "UNITS",
     "parse_quantity",
     "note_to_midi",
+    "midi_number",
     "midi_to_hz",
     "hz_to_midi",
     "parse_pitch",
@@ -169,6 +170,25 @@ def note_to_midi(name):
     semitone = _PITCH_CLASS[letter.upper()]
     semitone += {"#": 1, "♯": 1, "b": -1, "♭": -1}.get(accidental, 0)
     return 12 * (int(octave) + 1) + semitone
+
+
+def midi_number(value):
+    """MIDI number (0..127) of a note name (``"C2"``) or a whole number; ValueError says what is allowed.
+
+    >>> midi_number("A4"), midi_number(60)
+    (69, 60)
+    """
+    if isinstance(value, bool):
+        raise ValueError(f"{value!r} is not a note")
+    if isinstance(value, int):
+        midi = value
+    elif isinstance(value, str):
+        midi = note_to_midi(value.strip())
+    else:
+        raise ValueError(f"{short_repr(value)} is not a note name (e.g. A4, C#3, Bb1) or a MIDI number")
+    if not 0 <= midi <= 127:
+        raise ValueError(f"{value!r} is MIDI note {midi}, outside the MIDI range 0..127 (C-1..G9)")
+    return midi
 
 
 def midi_to_note(midi):

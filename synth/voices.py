@@ -129,10 +129,11 @@ class VoicingCache:
         pulse's time course does not move), the note's first weighing is scaled, not repeated."""
         if voiced.excitation.kind == "strike":  # contact time moves with velocity: a pulse of its own
             return Tone.from_table(weigh(voiced, unweighted))
-        first = self._weighed_notes.get(key[:2] + key[3:])
+        patch_index, note, _velocity, a4 = key
+        first = self._weighed_notes.get((patch_index, note, a4))
         if first is None:
             tone = Tone.from_table(weigh(voiced, unweighted))
-            self._weighed_notes[key[:2] + key[3:]] = (tone, voiced.excitation.strength)
+            self._weighed_notes[(patch_index, note, a4)] = (tone, voiced.excitation.strength)
             return tone
         tone, strength = first
         if voiced.excitation.strength == strength:
