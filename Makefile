@@ -10,8 +10,8 @@ setup: $(STAMP)
 
 $(STAMP): pyproject.toml
 	test -x $(BIN)/python || $(PYTHON) -m venv $(VENV)
-	$(BIN)/python -m pip install --quiet --upgrade pip
-	$(BIN)/python -m pip install --quiet -e ".[test,cluster]"
+	$(BIN)/python -m pip install --quiet --quiet --upgrade pip
+	$(BIN)/python -m pip install --quiet --quiet -e ".[test,cluster]"
 	touch $(STAMP)
 
 demo: $(STAMP)
@@ -21,8 +21,9 @@ demo: $(STAMP)
 	done
 	@$(BIN)/synth midi patches/midi/demo-song.mid --map patches/midi/demo-map.yaml -o renders/demo-song.wav --quiet
 	@$(BIN)/synth midi patches/midi/demo-song.mid --map patches/midi/instrument-map.yaml -o renders/demo-song-instruments.wav --quiet
-	@$(BIN)/synth batch patches/library/demo-library.yaml
-	@$(BIN)/synth batch patches/library/dulcimer-library.yaml
+	@$(BIN)/synth batch patches/library/demo-library.yaml --quiet
+	@$(BIN)/synth batch patches/library/dulcimer-library.yaml --quiet
+	@echo "listening caution: start playback quietly and raise it slowly; long exposure to loud sound harms hearing"
 
 test: $(STAMP)
 	$(BIN)/python -m pytest -q

@@ -23,10 +23,10 @@ _PUBLIC = {
     "ModeSet": "modes",
     "PartialTable": "modes",
     "Solution": "modes",
-    "table_to_csv": "modes",
-    "table_to_dict": "modes",
-    "table_to_json": "modes",
-    "table_to_text": "modes",
+    "table_to_csv": "report",
+    "table_to_dict": "report",
+    "table_to_json": "report",
+    "table_to_text": "report",
     "Patch": "patch",
     "load_patch": "patch",
     "patch_from_text": "patch",
@@ -36,6 +36,9 @@ _PUBLIC = {
     "patch_ending": "pipeline",
     "render_patch": "pipeline",
     "SolveCache": "solvecache",
+    "Rendered": "api",
+    "render": "api",
+    "write_audio": "api",
 }
 
 __all__ = ["__version__", *_PUBLIC]

@@ -74,6 +74,7 @@ from .library import (
 )
 from .solvecache import SolveCache
 from .tone import CUT_DB
+from .units import counted
 
 __all__ = ["LibraryResult", "build_library", "summary_lines", "default_workers"]
 
@@ -681,8 +682,9 @@ def summary_lines(result):
     if result.warned:
         file, first = result.warned[0]
         err.append(
-            f"synth: warning: {len(result.warned)} rendered files carry partial-table warnings "
-            f"(see partials.warnings in the manifest), e.g. {file}: {first}"
+            f"synth: warning: {file}: {first} (and the same or other partial-table warnings in "
+            f"{counted(len(result.warned) - 1, 'other file')}: partials.warnings in the manifest)"
+            if len(result.warned) > 1 else f"synth: warning: {file}: {first}"
         )
     if result.pruned:
         out.append(f"pruned {len(result.pruned)} stale file{'s' * (len(result.pruned) != 1)} the previous spec made: "

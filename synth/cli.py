@@ -16,7 +16,7 @@ import sys
 from pathlib import Path
 
 from . import __version__
-from .errors import ModalError, option_error
+from .errors import COMMAND_LINE, ModalError, option_error
 
 __all__ = ["main", "LISTENING_CAUTION"]
 
@@ -32,20 +32,54 @@ BROKEN_PIPE_STATUS = 141
 NUMERIC_ERRORS = (ArithmeticError, MemoryError, RecursionError)
 NUMERIC_HINT = "check that sizes and frequencies are physically sensible"
 SHORT_MESSAGE_CHARS = 80  # of a numeric failure's own message
+#: synth.report.UNIT_SYSTEMS and DEFAULT_UNITS, spelled out so ``synth --help`` needs no numpy (a test keeps them equal).
+UNIT_SYSTEMS = ("si", "workshop", "imperial")
+DEFAULT_UNITS = "workshop"
+
+
+#: Dedicated options and the patch key each one sets (as ``--set KEY=VALUE`` would).
+_KEY_OPTIONS = (
+    ("duration", "render.duration", "--duration"),
+    ("sample_rate", "render.sample_rate", "--sample-rate"),
+    ("pitch", "resonator.pitch", "--pitch"),
+    ("max_modes", "render.max_modes", "--max-modes"),
+    ("bit_depth", "render.bit_depth", "--bit-depth"),
+)
+#: A dotted patch key: names of letters, digits and '_' joined by dots.
+_KEY_PATTERN = r"[A-Za-z_][A-Za-z0-9_]*(\.[A-Za-z_][A-Za-z0-9_]*)*"
+
+
+def _setting(text):
+    """(key, value, option) of one ``--set KEY=VALUE``; the value is read as YAML (safely)."""
+    import re
+
+    from .yamlio import load_yaml_text
+
+    key, sep, value = text.partition("=")
+    key = key.strip()
+    if not sep or not re.fullmatch(_KEY_PATTERN, key):
+        raise option_error(f"give KEY=VALUE with a dotted patch key, e.g. --set resonator.length=\"650 mm\", "
+                           f"got {text!r}", "--set")
+    option = f"--set {key}"
+    try:
+        parsed = load_yaml_text(value, file=COMMAND_LINE) if value.strip() else None
+    except ModalError as error:
+        raise option_error(f"cannot read {value!r} as a value ({getattr(error, 'message', error)})", option) from None
+    return key, parsed, option
 
 
 def _overrides(args):
+    """{dotted key: (value, option)} from the dedicated options and every ``--set``; a key given twice is an error."""
     overrides = {}
-    for attr, key, option in (
-        ("duration", "render.duration", "--duration"),
-        ("sample_rate", "render.sample_rate", "--sample-rate"),
-        ("pitch", "resonator.pitch", "--pitch"),
-        ("max_modes", "render.max_modes", "--max-modes"),
-        ("bit_depth", "render.bit_depth", "--bit-depth"),
-    ):
+    for attr, key, option in _KEY_OPTIONS:
         value = getattr(args, attr, None)
         if value is not None:
             overrides[key] = (value, option)
+    for text in getattr(args, "settings", None) or ():
+        key, value, option = _setting(text)
+        if key in overrides:
+            raise option_error(f"{key} is already set by {overrides[key][1]}: give it once", option)
+        overrides[key] = (value, option)
     return overrides
 
 
@@ -60,6 +94,8 @@ def _load_key(args):
     mapping = load_yaml_file(args.patch)
     if not is_instrument_mapping(mapping):
         patch = patch_from_mapping(mapping, file=str(args.patch), overrides=overrides)
+        if "resonator.pitch" in overrides and getattr(patch.resonator, "profile", None) is not None:
+            patch = _mark_shaped_for(patch, mapping, overrides, str(args.patch))
         return patch, patch.name
     pitch = overrides.pop("resonator.pitch", None)
     instrument = instrument_from_mapping(mapping, file=str(args.patch), overrides=overrides)
@@ -75,14 +111,35 @@ def _load_key(args):
     return instrument.key_patch(midi), f"{instrument.name}-{midi_to_note(midi).replace('#', 's')}"
 
 
-def _warn(messages):
-    for message in messages:
-        print(f"synth: warning: {message}", file=sys.stderr)
+def _mark_shaped_for(patch, mapping, overrides, file):
+    """`patch` (a shaped bar moved by ``--pitch``) marked with the pitch its profile was made for.
+
+    The report then warns that its tuned ratios moved, as it does for a MIDI
+    note or a library sample (:func:`synth.resonators.bar.retune` marks those).
+    """
+    from dataclasses import replace
+
+    from .patch import patch_from_mapping
+    from .solvecache import DEFAULT_CACHE
+
+    made = patch_from_mapping(mapping, file=file, overrides={k: v for k, v in overrides.items() if k != "resonator.pitch"})
+    made_hz = made.resonator.pitch_hz or float(DEFAULT_CACHE.solve(made.resonator, 1).frequency_hz[0])
+    if abs(made_hz / patch.resonator.pitch_hz - 1.0) < 1e-9:
+        return patch
+    return replace(patch, resonator=replace(patch.resonator, shaped_for_hz=made_hz))
 
 
-def _note(messages):
+def _warn(messages, source=None):
+    """Each of `messages` as one ``synth: warning:`` line on stderr, naming `source` (the patch) when given."""
+    where = f"{source}: " if source else ""
+    for message in dict.fromkeys(messages):  # each once, in order
+        print(f"synth: warning: {where}{message}", file=sys.stderr)
+
+
+def _note(messages, source=None):
+    where = f"{source}: " if source else ""
     for message in messages:
-        print(f"synth: note: {message}", file=sys.stderr)
+        print(f"synth: note: {where}{message}", file=sys.stderr)
 
 
 def _check_rows(rows):
@@ -92,36 +149,44 @@ def _check_rows(rows):
 
 def cmd_modes(args):
     from .audio import atomic_output, check_output_file
-    from .modes import table_to_csv, table_to_json, table_to_text
     from .pipeline import partial_table
+    from .report import table_to_csv, table_to_json, table_to_text
 
     _check_rows(args.rows)
-    if args.csv:
+    to_stdout = args.csv == "-"
+    if to_stdout and args.json:
+        raise option_error("--csv - and --json both print to stdout: give one of them", "--csv")
+    if args.csv and not to_stdout:
         check_output_file(args.csv, suffixes=(".csv",), inputs=(args.patch,), key="--csv")
     patch, _ = _load_key(args)
     table = partial_table(patch, onset=False)  # a report: the onset samples are not needed
+    if to_stdout:
+        sys.stdout.write(table_to_csv(table))
+        return 0
     if args.csv:
         with atomic_output(Path(args.csv), key="--csv") as tmp:
             tmp.write_text(table_to_csv(table), encoding="utf-8")
     if args.json:
         print(table_to_json(table))
     else:
-        print(table_to_text(table, max_rows=args.rows))
+        print(table_to_text(table, max_rows=args.rows, units=args.units, source=args.patch))
     if args.csv and not args.json:
         print(f"wrote {args.csv}")
     return 0
 
 
 def cmd_render(args):
+    from .api import voiced
     from .audio import check_output_path, make_output_folder, normalise, peak_dbfs, sampler_fields, write_audio
     from .library import loudness_lufs
-    from .modes import table_to_text
     from .pipeline import partial_table, patch_ending, render_patch
+    from .report import table_to_text
     from .truepeak import true_peak_dbtp
     from .units import hz_to_midi
 
     _check_rows(args.rows)
     patch, stem = _load_key(args)
+    patch = voiced(patch, args.velocity, option="--velocity")  # None: the patch as written
     bits, rate = patch.render.bit_depth, patch.render.sample_rate
     out = Path(args.output) if args.output else DEFAULT_OUTPUT_DIR / f"{stem}.wav"
     check_output_path(out, bits, inputs=(args.patch,), make_folder=not args.output)
@@ -135,7 +200,7 @@ def cmd_render(args):
     sampler = sampler_fields(float(hz_to_midi(table.fundamental_hz)))
     write_audio(out, scaled, sample_rate=rate, bit_depth=bits, key="--output" if args.output else None, sampler=sampler)
     if not args.quiet:
-        print(table_to_text(table, max_rows=args.rows))
+        print(table_to_text(table, max_rows=args.rows, units=args.units, source=args.patch, warnings=False))
     loudness, _ = loudness_lufs(scaled, rate)
     heard = "" if loudness is None else f", {loudness:.1f} LUFS"
     print(
@@ -143,10 +208,11 @@ def cmd_render(args):
         f"true peak {true_peak_dbtp(scaled, rate):.2f} dBTP{heard})"
     )
     note = ending.describe(rate)
-    if note is not None:
-        (_warn if ending.audible_cut or ending.capped else _note)([note])
-    if table.warnings:
-        _warn(table.warnings)
+    if note is not None and (ending.audible_cut or ending.capped):
+        _warn([note], args.patch)
+    elif note is not None and not args.quiet:
+        _note([note], args.patch)
+    _warn(table.warnings, args.patch)
     if not args.quiet:
         print(LISTENING_CAUTION, file=sys.stderr)
     return 0
@@ -197,7 +263,7 @@ def cmd_batch(args):
         print(line)
     for line in err:
         print(line, file=sys.stderr)
-    if result.rendered:
+    if result.rendered and not args.quiet:
         print(LISTENING_CAUTION, file=sys.stderr)
     return result.exit_status
 
@@ -214,7 +280,7 @@ def cmd_tune_bar(args):
         tuning_report,
     )
     from .audio import atomic_output, check_output_file
-    from .patch import patch_from_mapping
+    from .patch import apply_overrides, patch_from_mapping
     from .yamlio import load_yaml_file
 
     out = Path(args.output) if args.output else None
@@ -226,7 +292,8 @@ def cmd_tune_bar(args):
         targets = parse_ratios(args.ratios)
     except TuningError as error:
         raise option_error(str(error), "--ratios") from None
-    mapping = load_yaml_file(args.patch)
+    # --set values go into the tuned patch that -o writes, as if they had been in the file
+    mapping = apply_overrides(load_yaml_file(args.patch), _overrides(args), str(args.patch))
     patch = patch_from_mapping(mapping, file=str(args.patch))
     if patch.resonator.TYPE != "bar":
         raise patch.error("resonator.type", f"tune-bar shapes bars, not a {patch.resonator.TYPE}")
@@ -254,7 +321,10 @@ def cmd_range(args):
     from .keyrange import range_rows, range_to_csv, range_to_json, range_to_text
     from .yamlio import load_yaml_file
 
-    if args.csv:
+    to_stdout = args.csv == "-"
+    if to_stdout and args.json:
+        raise option_error("--csv - and --json both print to stdout: give one of them", "--csv")
+    if args.csv and not to_stdout:
         check_output_file(args.csv, suffixes=(".csv",), inputs=(args.instrument,), key="--csv")
     mapping = load_yaml_file(args.instrument)
     if not is_instrument_mapping(mapping):
@@ -264,20 +334,55 @@ def cmd_range(args):
                          "synth modes shows a patch", file=args.instrument, line=1)
     instrument = instrument_from_mapping(mapping, file=str(args.instrument), overrides=_overrides(args))
     rows = range_rows(instrument)
+    if to_stdout:
+        sys.stdout.write(range_to_csv(instrument, rows))
+        return 0
     if args.csv:
         with atomic_output(Path(args.csv), key="--csv") as tmp:
             tmp.write_text(range_to_csv(instrument, rows), encoding="utf-8")
-    print(range_to_json(instrument, rows) if args.json else range_to_text(instrument, rows))
+    print(range_to_json(instrument, rows) if args.json else range_to_text(instrument, rows, units=args.units))
     if args.csv and not args.json:
         print(f"wrote {args.csv}")
     return 0
 
 
+def _argparse_message(message):
+    """argparse's own error text in the project's form: ``command line: OPTION: what is wrong``."""
+    import re
+
+    rules = (
+        (r"argument (\S+): not allowed with argument (\S+)", lambda m: (m[1], f"cannot be given with {m[2]}: give one of them")),
+        (r"one of the arguments (.+) is required", lambda m: (" or ".join(m[1].split()), "give one of them")),
+        (r"the following arguments are required: (.+)", lambda m: (m[1], "required, not given")),
+        (r"unrecognized arguments: (.+)", lambda m: (m[1].split()[0], "not an option of this command")),
+        (r"argument (\S+): invalid (?:int|float) value: (.+)", lambda m: (m[1], f"must be a whole number, got {m[2]}")),
+        (r"argument (\S+): invalid choice: (.+?) \(choose from (.+)\)",
+         lambda m: (m[1], f"{m[2]} is not one of {m[3]}")),
+        (r"argument (\S+): expected one argument", lambda m: (m[1], "needs a value")),
+        (r"ambiguous option: (\S+) could match (.+)", lambda m: (m[1], f"could be any of {m[2]}: write it in full")),
+        (r"argument (\S+): (.+)", lambda m: (m[1], m[2])),
+    )
+    for pattern, build in rules:
+        match = re.fullmatch(pattern, message)
+        if match:
+            option, text = build(match)
+            option = "COMMAND" if option.startswith("COMMAND") else option.split("/")[-1]
+            return f"{COMMAND_LINE}: {option}: {text}"
+    return f"{COMMAND_LINE}: {message}"
+
+
 class _Parser(argparse.ArgumentParser):
-    """argparse with one-line errors (exit status 2), like every other synth error."""
+    """argparse with one-line errors (exit status 2) in the form of every other synth error.
+
+    Options are matched in full only (``--r`` is not taken for ``--rows``).
+    """
+
+    def __init__(self, *args, **kwargs):
+        kwargs.setdefault("allow_abbrev", False)
+        super().__init__(*args, **kwargs)
 
     def error(self, message):
-        self.exit(2, f"synth: error: {message} (see '{self.prog} --help')\n")
+        self.exit(2, f"synth: error: {_argparse_message(message)} (see '{self.prog} --help')\n")
 
 
 def build_parser():
@@ -293,21 +398,36 @@ def build_parser():
         p.add_argument("--pitch", help="override the pitch (note name such as A2, or '110 Hz'); retunes the object; "
                                        "for an instrument, the key to show or render")
         p.add_argument("--sample-rate", dest="sample_rate", help="override render.sample_rate (Hz)")
-        p.add_argument("--max-modes", dest="max_modes", help="override render.max_modes")
+        p.add_argument("--max-modes", dest="max_modes", help="override render.max_modes (a number, or auto)")
+        set_option(p)
+
+    def set_option(p):
+        p.add_argument("--set", action="append", dest="settings", metavar="KEY=VALUE",
+                       help="set one patch key for this run, checked as in the file; repeatable; units allowed: "
+                            "--set resonator.diameter=\"0.5 mm\"")
+
+    def units_option(p):
+        p.add_argument("--units", choices=UNIT_SYSTEMS, default=DEFAULT_UNITS,
+                       help="units of the report: si (m, kg, N, Pa), workshop (mm, g, N, MPa; the default) or "
+                            "imperial (in, lb, lbf, psi); --json and CSV stay SI")
 
     modes = commands.add_parser("modes", help="print the partial table of a patch")
     patch_options(modes)
     modes.add_argument("--json", action="store_true", help="print the table as one JSON object")
-    modes.add_argument("--csv", metavar="FILE", help="also write the table as CSV to FILE")
+    modes.add_argument("--csv", metavar="FILE", help="also write the table as CSV to FILE (parameters first, as "
+                                                     "'# key,value' lines); '-' prints only the CSV")
     modes.add_argument("--rows", type=int, default=None, help="show only the first ROWS modes of the text table")
+    units_option(modes)
     modes.set_defaults(func=cmd_modes)
 
     keyrange = commands.add_parser("range", help="print an instrument's keys as designed: pitch, sizes, stress, T60, ratios")
     keyrange.add_argument("instrument", help="instrument file (YAML)")
     keyrange.add_argument("--json", action="store_true", help="print the table as one JSON object")
-    keyrange.add_argument("--csv", metavar="FILE", help="also write the table as CSV to FILE")
+    keyrange.add_argument("--csv", metavar="FILE", help="also write the table as CSV to FILE; '-' prints only the CSV")
     keyrange.add_argument("--sample-rate", dest="sample_rate", help="override render.sample_rate (Hz)")
-    keyrange.add_argument("--max-modes", dest="max_modes", help="override render.max_modes")
+    keyrange.add_argument("--max-modes", dest="max_modes", help="override render.max_modes (a number, or auto)")
+    set_option(keyrange)
+    units_option(keyrange)
     keyrange.set_defaults(func=cmd_range)
 
     render = commands.add_parser("render", help="render a patch to a WAV (or FLAC) file")
@@ -316,7 +436,10 @@ def build_parser():
     render.add_argument("--duration", help="override render.duration (e.g. 2.5 or '800 ms')")
     render.add_argument("--bit-depth", dest="bit_depth", help="override render.bit_depth (16, 24, 32)")
     render.add_argument("--rows", type=int, default=10, help="partial-table rows to print (default 10)")
-    render.add_argument("-q", "--quiet", action="store_true", help="print only where the file went")
+    render.add_argument("--velocity", help="play it as a MIDI note of this velocity (1..127; 100 = the patch as "
+                                           "written) would sound: strength and contact time follow it")
+    render.add_argument("-q", "--quiet", action="store_true", help="print only where the file went (and real warnings)")
+    units_option(render)
     render.set_defaults(func=cmd_render)
 
     midi = commands.add_parser("midi", help="render a MIDI file (format 0 or 1) through a patch or a channel map")
@@ -342,6 +465,7 @@ def build_parser():
                        help="with --scheduler: give up (exit status 1) once no Dask worker has been alive this long "
                             "(default 120 s)")
     batch.add_argument("--verbose", action="store_true", help="with --scheduler: show Dask's own log messages")
+    batch.add_argument("-q", "--quiet", action="store_true", help="leave out the listening caution after the summary")
     batch.add_argument("--prune", action="store_true",
                        help="delete the files the previous manifest listed that this spec no longer produces")
     batch.set_defaults(func=cmd_batch)
@@ -351,6 +475,7 @@ def build_parser():
     tune.add_argument("--ratios", required=True, help="target ratios of partials 1:2:3, e.g. 1:4:10 (marimba) or 1:3:6 (xylophone)")
     tune.add_argument("--points", type=int, default=41, help="profile points to report (default 41)")
     tune.add_argument("-o", "--output", help="write the tuned patch (.yaml) here; default: print the profile")
+    set_option(tune)
     tune.set_defaults(func=cmd_tune_bar)
     return parser
 

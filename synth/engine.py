@@ -438,6 +438,21 @@ def render_modes(
        Signals*, MIT Press, 1991.
     .. [2] K. Goto and R. van de Geijn, "Anatomy of high-performance matrix
        multiplication", ACM Trans. Math. Softw. 34(3), 2008.
+
+    Examples
+    --------
+    Two partials, a fifth apart, the upper one dying twice as fast:
+
+    >>> import numpy as np
+    >>> from synth import render_modes
+    >>> y = render_modes([300.0, 450.0], [0.8, 0.4], [0.6, 0.3], 0.02, 8000)
+    >>> y.shape, y.dtype.name, float(y[0])
+    ((160,), 'float32', 0.0)
+    >>> t = np.arange(160) / 8000.0  # the formula above, in float64
+    >>> exact = sum(a * np.exp(-np.log(1000.0) * t / t60) * np.sin(2 * np.pi * f * t)
+    ...             for f, t60, a in [(300.0, 0.8, 0.6), (450.0, 0.4, 0.3)])
+    >>> bool(np.max(np.abs(y - exact)) < 1e-6)
+    True
     """
     f, t60, a, ph, fs, n = _validate(frequency_hz, t60_s, amplitude, duration, sample_rate, phase)
     if not (math.isfinite(floor) and floor >= 0):

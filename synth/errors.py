@@ -14,7 +14,22 @@ COMMAND_LINE = "command line"
 
 
 class ModalError(Exception):
-    """Base class of every error synth raises on purpose."""
+    """Base class of every error synth raises on purpose.
+
+    Catch it to handle any problem a user can cause (a bad patch, a render
+    that would clip, a file that cannot be written) in one place; its
+    subclasses are also builtins (:class:`PatchError` is a ValueError,
+    :class:`RenderError` a RuntimeError).
+
+    Examples
+    --------
+    >>> import synth
+    >>> try:
+    ...     synth.patch_from_text("name: empty")
+    ... except synth.ModalError as error:
+    ...     print(type(error).__name__, error.line, error.key)
+    PatchError 1 resonator
+    """
 
 
 class PatchError(ValueError, ModalError):
@@ -30,6 +45,32 @@ class PatchError(ValueError, ModalError):
         1-based line in `file`, where the YAML parser knows it.
     key : str or None
         Dotted key path, e.g. ``resonator.length``.
+
+    Attributes
+    ----------
+    message, file, line, key
+        As given; ``str(error)`` joins them into one line,
+        ``file:line: key: message``.
+
+    Examples
+    --------
+    >>> import pickle
+    >>> import synth
+    >>> error = synth.PatchError("must be > 0, got -1", file="harp.yaml", line=4, key="resonator.length")
+    >>> print(error)
+    harp.yaml:4: resonator.length: must be > 0, got -1
+    >>> isinstance(error, ValueError), pickle.loads(pickle.dumps(error)).line
+    (True, 4)
+    >>> patch = synth.patch_from_text('''
+    ... name: cello-ish
+    ... resonator: {type: string, material: steel, length: 690 mm, diameter: 1.2 mm, pitch: C2}
+    ... render: {sample_rate: 8000}
+    ... ''')
+    >>> try:  # C9 (8372 Hz) is above Nyquist at 8 kHz
+    ...     synth.partial_table(synth.retune(patch, "C9"))
+    ... except synth.PatchError as error:
+    ...     print(error.key)
+    render.sample_rate
     """
 
     def __init__(self, message, file=None, line=None, key=None):
@@ -54,11 +95,39 @@ class PatchError(ValueError, ModalError):
 
 
 class InputFileError(PatchError):
-    """An input file (MIDI, map, spec) that is missing, unreadable or corrupt."""
+    """An input file (patch, MIDI, map, spec) that is missing, unreadable or corrupt.
+
+    A :class:`PatchError` naming the file.
+
+    Examples
+    --------
+    >>> import synth
+    >>> try:
+    ...     synth.load_patch("no-such-patch.yaml")
+    ... except synth.InputFileError as error:
+    ...     print(error)
+    no-such-patch.yaml: file not found
+    """
 
 
 class RenderError(RuntimeError, ModalError):
-    """A render that cannot be done as asked (it would clip, or is too large)."""
+    """A render that cannot be done as asked (it would clip, or is too large), or a file that cannot be written.
+
+    Examples
+    --------
+    >>> import synth
+    >>> patch = synth.patch_from_text('''
+    ... name: loud-at-absolute-scale
+    ... resonator: {type: string, material: nylon, length: 300 mm, diameter: 0.8 mm, pitch: G4}
+    ... excitation: {type: pluck, strength: 100}
+    ... render: {duration: 0.05 s, sample_rate: 8000, max_modes: 12, peak_db: null}
+    ... ''')
+    >>> try:
+    ...     synth.render(patch)
+    ... except synth.RenderError as error:
+    ...     print(type(error).__name__, "would clip" in str(error))
+    RenderError True
+    """
 
 
 class RunError(RenderError):

@@ -42,6 +42,7 @@ from pathlib import Path
 import numpy as np
 
 from .errors import PatchError, RenderError
+from .pipeline import solve_modes
 from .resonators import UnreachablePitch, resonator_module
 from .schema import convert
 from .solvecache import DEFAULT_CACHE
@@ -253,7 +254,7 @@ class Instrument:
 
     def _octave_ratio(self, patch, midi):
         """f2 / f1 of a key's object (uncoupled), refused when the object is not near-harmonic."""
-        frequency = self.cache.solve(patch.resonator, max(patch.render.max_modes, 2)).frequency_hz
+        frequency = solve_modes(patch, cache=self.cache, at_least=2).frequency_hz
         ratio = float(frequency[1] / frequency[0]) if len(frequency) > 1 else math.nan
         if not (_OCTAVE_PARTIAL[0] <= ratio <= _OCTAVE_PARTIAL[1]):
             raise self.error("tuning.stretch", f"octaves need a 2nd partial near 2x the fundamental; at "
@@ -323,7 +324,7 @@ class Instrument:
 
     def _fundamental(self, midi, patch):
         try:
-            return float(self.cache.solve(patch.resonator, patch.render.max_modes).frequency_hz[0])
+            return float(solve_modes(patch, cache=self.cache).frequency_hz[0])
         except UnreachablePitch as error:
             raise self.error("range", f"{midi_to_note(midi)}: {error}") from None
 
@@ -351,7 +352,7 @@ class Instrument:
         from .coupling import string_impedance
         from .damping import LN1000
 
-        solution = self.cache.solve(patch.resonator, patch.render.max_modes)
+        solution = solve_modes(patch, cache=self.cache)
         own = float(solution.frequency_hz[0])
         modes = coupling.apply([own], [LN1000 / patch.damping.t60], [1],
                                impedance=string_impedance(solution.parameters))
@@ -387,7 +388,7 @@ class Instrument:
             section[key] = v
             patch = self._patch_at(midi, mapping)
             try:
-                return patch, float(self.cache.solve(patch.resonator, patch.render.max_modes).frequency_hz[0])
+                return patch, float(solve_modes(patch, cache=self.cache).frequency_hz[0])
             except UnreachablePitch as error:
                 raise self.error("solve", f"at {midi_to_note(midi)}: {error}") from None
 

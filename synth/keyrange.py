@@ -16,7 +16,7 @@ import math
 
 import numpy as np
 
-from .modes import PREVIEW_NOTE
+from .report import DEFAULT_UNITS, PREVIEW_NOTE, format_number, unit_symbol
 from .pipeline import partial_table
 from .units import cents
 
@@ -28,16 +28,16 @@ WORKING_CEILING = 0.60
 #: Partial ratios shown per key.
 N_RATIOS = 4
 #: Parameters reported, in this order, when the object has them: (key, JSON name, text header, scale, format).
-_REPORTED = (
+_REPORTED = (  # (parameter key, JSON name, column header, quantity, resolution in SI units or a format)
     ("material", "material", "material", None, "{}"),
-    ("length_m", "length_m", "length mm", 1e3, "{:.1f}"),
-    ("diameter_m", "diameter_m", "diam mm", 1e3, "{:.3f}"),
-    ("width_m", "width_m", "width mm", 1e3, "{:.1f}"),
-    ("thickness_m", "thickness_m", "thick mm", 1e3, "{:.2f}"),
-    ("tension_n", "tension_n", "tension N", 1.0, "{:.1f}"),
-    ("stress_pa", "stress_pa", "stress MPa", 1e-6, "{:.0f}"),
-    ("stress_percent_of_strength", "stress_percent_of_strength", "% strength", 1.0, "{:.1f}"),
-    ("inharmonicity_b", "inharmonicity_b", "B", 1.0, "{:.2e}"),
+    ("length_m", "length_m", "length", "length", 1e-4),
+    ("diameter_m", "diameter_m", "diam", "length", 1e-6),
+    ("width_m", "width_m", "width", "length", 1e-4),
+    ("thickness_m", "thickness_m", "thick", "length", 1e-5),
+    ("tension_n", "tension_n", "tension", "force", 0.1),
+    ("stress_pa", "stress_pa", "stress", "stress", 1e6),
+    ("stress_percent_of_strength", "stress_percent_of_strength", "% strength", None, "{:.1f}"),
+    ("inharmonicity_b", "inharmonicity_b", "B", None, "{:.2e}"),
 )
 
 
@@ -82,7 +82,7 @@ def _row(instrument, design, table):
     for entry in instrument.vary:
         value = entry.at(design.midi)
         parameters.setdefault(f"vary.{entry.key}", value if not isinstance(value, dict) else dict(value))
-    warnings = [w for w in table.warnings if "Nyquist" not in w]
+    warnings = list(table.warnings)  # modes left out at Nyquist are information (parameters), not warnings
     percent = table.parameters.get("stress_percent_of_strength")
     if percent is not None and percent > 100 * WORKING_CEILING:
         warnings.append(f"stress {percent:.0f}% of tensile strength is above the {WORKING_CEILING:.0%} working "
@@ -146,24 +146,36 @@ def _json_default(value):
     raise TypeError(f"not JSON: {type(value).__name__}")
 
 
-def _columns(rows):
-    """(header, getter, format) of the text and CSV columns the rows have values for."""
+def _columns(rows, units=DEFAULT_UNITS):
+    """(header, getter, format) of the text and CSV columns the rows have values for, in `units`."""
     columns = [("note", lambda r: r["note"], "{}"), ("target Hz", lambda r: r["target_hz"], "{:.2f}"),
                ("sounding Hz", lambda r: r["fundamental_hz"], "{:.2f}"),
                ("cents", lambda r: r["cents_from_target"], "{:+.2f}")]
     if any(abs(r["parameters"].get("stretch_cents", 0.0)) > 1e-9 for r in rows):
         columns.append(("stretch c", lambda r: r["parameters"]["stretch_cents"], "{:+.2f}"))
-    for _key, name, header, scale, fmt in _REPORTED:
+    extra = (("undercut_depth", "undercut_depth", "cut %", None, "{:.1f}"),
+             ("tube_length_m", "tube_length_m", "tube", "length", 1e-4))
+    for _key, name, header, quantity, resolution in _REPORTED + extra:
         if any(name in r["parameters"] for r in rows):
-            columns.append((header, _scaled(name, scale), fmt))
-    extra = (("undercut_depth", "cut %", 100.0, "{:.1f}"), ("tube_length_m", "tube mm", 1e3, "{:.1f}"))
-    for name, header, scale, fmt in extra:
-        if any(name in r["parameters"] for r in rows):
-            columns.append((header, _scaled(name, scale), fmt))
+            if quantity is None:
+                scale = 100.0 if name == "undercut_depth" else None
+                columns.append((header, _scaled(name, scale), resolution))
+            else:
+                columns.append((f"{header} {unit_symbol(quantity, units)}", _shown(name, quantity, units, resolution), "{}"))
     columns += [("T60 s", lambda r: "/".join(f"{v:.3g}" for v in r["t60_s"]), "{}"),
                 ("ratios", lambda r: ":".join(f"{v:.3f}" for v in r["ratios"]), "{}"),
                 ("warnings", lambda r: len(r["warnings"]) or "", "{}")]
     return columns
+
+
+def _shown(name, quantity, units, resolution):
+    def get(row):
+        value = row["parameters"].get(name)
+        if value is None or isinstance(value, str):
+            return value
+        return format_number(value, quantity, units=units, resolution=resolution)
+
+    return get
 
 
 def _scaled(name, scale):
@@ -176,9 +188,9 @@ def _scaled(name, scale):
     return get
 
 
-def range_to_text(instrument, rows):
-    """The range table as aligned text, with the design caution and the instrument's warnings."""
-    columns = _columns(rows)
+def range_to_text(instrument, rows, *, units=DEFAULT_UNITS):
+    """The range table as aligned text (sizes, forces and stresses in `units`), with the instrument's warnings."""
+    columns = _columns(rows, units)
     table = []
     for row in rows:
         cells = []

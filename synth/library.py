@@ -63,7 +63,7 @@ from .libindex import (
     VELOCITY_HIGH,
     VELOCITY_LOW,
 )
-from .modes import table_to_dict
+from .report import table_to_dict
 from .instrument_file import load_playable
 from .pipeline import partial_table
 from .schema import Field, Section, read_section

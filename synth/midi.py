@@ -69,7 +69,7 @@ from .midifile import MidiSong, TempoMap, read_midi, tempo_map
 from .instrument_file import load_playable
 from .patch import _RENDER_FIELDS, MEMORY_LIMIT_BYTES
 from .schema import Field, Section, convert_option, read_section
-from .units import midi_to_note, short_repr
+from .units import counted, midi_to_note, short_repr
 from .voices import (
     VoicingCache,
     pan_gains,
@@ -447,8 +447,8 @@ def _in_ranges(performance, assigned, patches):
     warnings = []
     for index, keys in outside.items():
         shown = ", ".join(midi_to_note(k) for k in sorted(set(keys))[:6]) + (" ..." if len(set(keys)) > 6 else "")
-        warnings.append(f"{patches[index].name} plays {patches[index].range_text}: {len(keys)} note(s) outside "
-                        f"it skipped ({shown})")
+        warnings.append(f"{patches[index].name} plays {patches[index].range_text}: {counted(len(keys), 'note')} "
+                        f"outside it skipped ({shown})")
     notes = tuple(performance.notes[i] for i in kept)
     return replace(performance, notes=notes), [assigned[i] for i in kept], warnings
 
@@ -594,19 +594,16 @@ def _gains(entry, note, stereo):
 def _tone_warnings(cache):
     """One line per patch and kind of partial-table warning, with how many voiced notes gave it.
 
-    Modes left out at Nyquist are not repeated here: every note of a patch
-    drops some, and ``synth modes`` lists them.
+    (Modes left out at Nyquist are no warning: the tables record them.)
     """
     groups = {}
     for (index, note, velocity, _), tone in cache.items():
         for text in tone.warnings:
-            if "Nyquist" in text:
-                continue
             key = (index, re.sub(r"[-+]?\d[\d.,]*", "#", text))
             count, example = groups.get(key, (0, (note, velocity, text)))
             groups[key] = (count + 1, example)
     lines = []
     for (index, _), (count, (note, velocity, text)) in groups.items():
-        lines.append(f"{cache.patches[index].name}: {count} voiced note(s) warn, e.g. {midi_to_note(note)} "
-                     f"velocity {velocity}: {text}")
+        others = f" (and {counted(count - 1, 'other note')} of the song)" if count > 1 else ""
+        lines.append(f"{cache.patches[index].name}, {midi_to_note(note)} at velocity {velocity}{others}: {text}")
     return lines

@@ -10,10 +10,6 @@ engine renders and the report prints as text, JSON or CSV.
 """
 from __future__ import annotations
 
-import csv
-import io
-import json
-import math
 from dataclasses import dataclass, field
 
 import numpy as np
@@ -26,13 +22,7 @@ __all__ = [
     "LazyColumn",
     "take_column",
     "frozen_array",
-    "table_to_dict",
-    "table_to_text",
-    "table_to_csv",
 ]
-
-#: Shown under any stress figure: design figures are previews.
-PREVIEW_NOTE = "stress figures are previews: defer to the maker's data, local codes and qualified practice"
 
 #: |shape| below this fraction of the largest |shape| counts as a node.
 NODE_TOLERANCE = 1e-9
@@ -168,6 +158,22 @@ class Solution:
         or ``(radius fraction, angle rad)``), scaled to a common modal mass.
     columns, parameters, warnings
         As in :class:`ModeSet`.
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> import synth
+    >>> patch = synth.patch_from_text('''
+    ... name: bench-nylon
+    ... resonator: {type: string, material: nylon, length: 300 mm, diameter: 0.8 mm, pitch: G4}
+    ... render: {sample_rate: 8000, max_modes: 12}
+    ... ''')
+    >>> solution = synth.SolveCache().solve(patch.resonator, 6)
+    >>> solution.resonator, solution.labels
+    ('string', ('n=1', 'n=2', 'n=3', 'n=4', 'n=5', 'n=6'))
+    >>> middle = solution.place(0.5, None)  # plucked at the middle: the even modes have a node there
+    >>> np.round(np.abs(middle.excitation_shape), 6).tolist()
+    [1.0, 0.0, 1.0, 0.0, 1.0, 0.0]
     """
 
     resonator: str
@@ -216,6 +222,24 @@ class ModeSet:
         Resolved physical values (solved tension, stress, ...), SI units.
     warnings : tuple of str
         Anything the user should know (stress near breaking, dropped modes).
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> import synth
+    >>> patch = synth.patch_from_text('''
+    ... name: bench-nylon
+    ... resonator: {type: string, material: nylon, length: 300 mm, diameter: 0.8 mm, pitch: G4}
+    ... excitation: {type: pluck, position: 0.25}
+    ... render: {sample_rate: 8000, max_modes: 12}
+    ... ''')
+    >>> modes = synth.mode_set(patch)
+    >>> modes.resonator, len(modes.frequency_hz), modes.labels[:3]
+    ('string', 12, ('n=1', 'n=2', 'n=3'))
+    >>> np.round(modes.frequency_hz[:3]).tolist()  # Hz: nearly harmonic, a little sharp (stiffness)
+    [392.0, 784.0, 1178.0]
+    >>> np.round(np.abs(modes.excitation_shape[:4]), 4).tolist()  # mode 4 has a node at 1/4
+    [0.7071, 1.0, 0.7071, 0.0]
     """
 
     resonator: str
@@ -300,6 +324,29 @@ class PartialTable:
         None in a report's table, made without it (``partial_table(..., onset=False)``).
     sample_rate : float or None, Hz
         The rate the table was made for (Nyquist cut, onset).
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> import synth
+    >>> patch = synth.patch_from_text('''
+    ... name: bench-nylon
+    ... resonator: {type: string, material: nylon, length: 300 mm, diameter: 0.8 mm, pitch: G4}
+    ... excitation: {type: pluck, position: 0.25}
+    ... damping: {t60: 2 s, t60_high: 0.5 s, high_frequency: 3 kHz}
+    ... render: {sample_rate: 8000, max_modes: 12}
+    ... ''')
+    >>> table = synth.partial_table(patch)
+    >>> round(table.fundamental_hz, 1), len(table.frequency_hz)  # modes 11 and 12 are above Nyquist
+    (392.0, 10)
+    >>> np.round(table.ratio[:4], 3).tolist()
+    [1.0, 2.001, 3.004, 4.01]
+    >>> np.round(table.level_db[:5]).tolist()  # dB re the strongest; mode 4 has a node at the pluck: NaN
+    [0.0, -3.0, -10.0, nan, -15.0]
+    >>> bool(np.all(np.diff(table.t60_s) < 0))  # higher partials decay faster
+    True
+    >>> table.parameters["modes_above_nyquist"], table.warnings  # expected, so not a warning
+    (2, ())
     """
 
     name: str
@@ -328,190 +375,3 @@ class PartialTable:
         ratio = self.ratio
         harmonic = np.maximum(1.0, np.round(ratio))
         return 1200.0 * np.log2(ratio / harmonic)
-
-
-def _clean(value):
-    """A JSON-safe form of `value` (NaN/inf -> None, numpy -> python)."""
-    if isinstance(value, (list, tuple, np.ndarray)):
-        return [_clean(v) for v in value]
-    if isinstance(value, dict):
-        return {k: _clean(v) for k, v in value.items()}
-    if isinstance(value, (np.integer,)):
-        return int(value)
-    if isinstance(value, (float, np.floating)):
-        value = float(value)
-        return value if math.isfinite(value) else None
-    return value
-
-
-def table_to_dict(table):
-    """The partial table as the JSON object described in DESIGN.md."""
-    modes = []
-    ratio, cents = table.ratio, table.cents_from_harmonic
-    columns = {
-        k: (list(v) if isinstance(v, LazyColumn) else v)
-        for k, v in table.columns.items()
-        if not getattr(v, "report_only", False)
-    }
-    for i in range(len(table.frequency_hz)):
-        mode = {
-            "index": i + 1,
-            "label": table.labels[i],
-            "frequency_hz": float(table.frequency_hz[i]),
-            "ratio": float(ratio[i]),
-            "cents_from_harmonic": float(cents[i]),
-            "t60_s": float(table.t60_s[i]),
-            "level_db": float(table.level_db[i]),
-            "amplitude": float(table.amplitude[i]),
-            "phase_rad": float(table.phase[i]),
-        }
-        for key, values in columns.items():
-            mode[key] = values[i]
-        modes.append(mode)
-    return _clean(
-        {
-            "name": table.name,
-            "resonator": table.resonator,
-            "fundamental_hz": table.fundamental_hz,
-            "parameters": table.parameters,
-            "modes": modes,
-            "warnings": list(table.warnings),
-        }
-    )
-
-
-def table_to_json(table):
-    """The partial table as a JSON string."""
-    return json.dumps(table_to_dict(table), indent=2)
-
-
-def table_to_csv(table):
-    """The partial table as CSV text, one row per mode (lists joined by spaces)."""
-    data = table_to_dict(table)
-    buffer = io.StringIO()
-    if not data["modes"]:
-        return ""
-    writer = csv.DictWriter(buffer, fieldnames=list(data["modes"][0]), lineterminator="\n")
-    writer.writeheader()
-    for mode in data["modes"]:
-        row = {k: (" ".join(_fmt(x, 6) for x in v) if isinstance(v, list) else _fmt(v, 10)) for k, v in mode.items()}
-        writer.writerow(row)
-    return buffer.getvalue()
-
-
-def _fmt(value, digits):
-    if value is None:
-        return ""
-    if isinstance(value, float):
-        return f"{value:.{digits}g}"
-    return str(value)
-
-
-# Report columns of the text table: (header, json key, format).
-_TEXT_COLUMNS = (
-    ("#", "index", "{:d}"),
-    ("mode", "label", "{}"),
-    ("freq Hz", "frequency_hz", "{:.2f}"),
-    ("ratio", "ratio", "{:.4f}"),
-    ("cents", "cents_from_harmonic", "{:+.1f}"),
-    ("T60 s", "t60_s", "{:.3g}"),
-    ("level dB", "level_db", "{:.1f}"),
-)
-
-#: Extra columns a resonator may add, with their text header and format.
-EXTRA_TEXT_COLUMNS = {
-    "harmonic": ("harm", "{:d}"),
-    "overtone": ("ovt", "{:d}"),
-    "wavelength_m": ("wavelen m", "{:.4g}"),
-    "n_nodes": ("nodes", "{:d}"),
-    "n_antinodes": ("antinodes", "{:d}"),
-    "node_positions": ("node positions (fraction of length)", None),
-    "orientation": ("orient", "{}"),
-    "nodal_diameters": ("diam", "{}"),
-    "nodal_circles": ("circles", "{}"),
-    "nodal_lines_x": ("lines x", "{}"),
-    "nodal_lines_y": ("lines y", "{}"),
-    "nodal_lines": ("nodal lines", "{}"),
-    "timoshenko_shift_cents": ("shear cents", "{:+.1f}"),
-}
-
-
-def _positions_text(values, limit=5):
-    text = " ".join(f"{v:.3g}" for v in values[:limit])
-    if len(values) > limit:
-        text += f" ... ({len(values)})"
-    return text
-
-
-def table_to_text(table, *, max_rows=None):
-    """The partial table as an aligned text table, with parameters and warnings.
-
-    Parameters
-    ----------
-    table : PartialTable
-    max_rows : int or None
-        Show only the first `max_rows` modes (and say how many were left out).
-    """
-    data = table_to_dict(table)
-    columns = list(_TEXT_COLUMNS)
-    for key in table.columns:
-        if key in EXTRA_TEXT_COLUMNS:
-            header, fmt = EXTRA_TEXT_COLUMNS[key]
-            columns.append((header, key, fmt))
-    rows = []
-    modes = data["modes"] if max_rows is None else data["modes"][:max_rows]
-    for i, mode in enumerate(modes):
-        row = []
-        for _header, key, fmt in columns:
-            value = _clean(table.columns[key][i]) if key in table.columns else mode.get(key)
-            if value is None:
-                row.append("null" if key == "level_db" else "")
-            elif fmt is None:
-                row.append(_positions_text(value))
-            else:
-                row.append(fmt.format(value))
-        rows.append(row)
-    headers = [c[0] for c in columns]
-    widths = [max([len(h)] + [len(r[i]) for r in rows]) for i, h in enumerate(headers)]
-    lines = [f"{table.name} ({table.resonator}), fundamental {table.fundamental_hz:.3f} Hz, {len(table.frequency_hz)} modes"]
-    lines += [_parameter_line(k, v) for k, v in data["parameters"].items()]
-    if "stress_pa" in data["parameters"]:
-        lines.append(f"  ({PREVIEW_NOTE})")
-    lines.append("  ".join(h.rjust(w) if i != 1 and i < 7 else h.ljust(w) for i, (h, w) in enumerate(zip(headers, widths))).rstrip())
-    for row in rows:
-        lines.append("  ".join(c.rjust(w) if i != 1 and i < 7 else c.ljust(w) for i, (c, w) in enumerate(zip(row, widths))).rstrip())
-    if max_rows is not None and len(data["modes"]) > max_rows:
-        lines.append(f"... {len(data['modes']) - max_rows} more modes (synth modes PATCH lists them all)")
-    lines += [f"warning: {w}" for w in data["warnings"]]
-    return "\n".join(lines)
-
-
-#: Parameter-name suffix -> (unit shown, scale applied) for the text report.
-_PARAMETER_UNITS = (
-    ("_percent_of_strength", "%", 1.0),
-    ("_n_per_m", "N/m", 1.0),
-    ("_kg_m2", "kg/m^2", 1.0),
-    ("_kg_m", "kg/m", 1.0),
-    ("_n_m", "N m", 1.0),
-    ("_kg", "kg", 1.0),
-    ("_m_s", "m/s", 1.0),
-    ("_pa", "MPa", 1e-6),
-    ("_hz", "Hz", 1.0),
-    ("_n", "N", 1.0),
-    ("_m", "m", 1.0),
-    ("_s", "s", 1.0),
-)
-
-
-def _parameter_line(key, value):
-    label, unit, scale = key, "", 1.0
-    for suffix, unit_text, factor in _PARAMETER_UNITS:
-        if key.endswith(suffix):
-            label, unit, scale = key[: -len(suffix)], unit_text, factor
-            break
-    if isinstance(value, float):
-        value = f"{value * scale:.6g}"
-    elif value is None:
-        value = "unknown"
-    label = "stress / tensile strength" if key == "stress_percent_of_strength" else label.replace("_", " ")
-    return f"  {label}: {value}{' ' + unit if unit and value != 'unknown' else ''}"

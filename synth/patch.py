@@ -42,8 +42,22 @@ __all__ = [
     "estimate_render_bytes",
 ]
 
-#: Largest mode count a patch may ask for.
-MAX_MODES = 20000
+#: Most modes a render computes: the largest number ``render.max_modes`` takes, and the
+#: ceiling of ``auto`` (every mode below Nyquist; more is an error on render.max_modes).
+#: Measured on the worst common case, a 2-D object whose mode count grows as the square of
+#: the bandwidth: a membrane of radius 0.23 m, 0.3 kg/m^2 at pitch D3, struck, 2 s rendered
+#: (synth.pipeline.solve_modes, partial_table, render_patch timed in one process; peak RSS
+#: from getrusage; 2 vCPUs):
+#:   48 kHz: 38,425 modes below Nyquist; solve 0.7-0.9 s, table 0.2-1.0 s, render 0.1 s, peak RSS
+#:           82-98 MiB (51 MiB after imports);
+#:   96 kHz: 154,112 modes; solve 2.1-2.4 s, table 3.9-4.6 s, render 0.5 s, 140 MiB;
+#:   108 kHz (impulse): 195,113 modes; solve 2.7 s, table 1.1 s, render 0.7 s, 133 MiB.
+#: About 430-600 bytes a mode in all, well under BYTES_PER_MODE, so memory is not what
+#: bounds the count (16 GiB / 4096 B would allow 4 million): the time is, about 30 us a mode
+#: before the audio.  200,000 keeps the first render of any patch within about 10 s and
+#: 0.8 GiB by the estimate below; it holds that drum up to 96 kHz and refuses 192 kHz
+#: (about 616,000 modes), where a number of modes is the better request.
+MAX_MODES = 200_000
 #: Sample rates a patch may ask for (Hz): 1 kHz .. 768 kHz, a whole number of Hz
 #: (a WAV header holds nothing else); 768 kHz is the highest rate common
 #: audio interfaces offer (common practice).
@@ -185,9 +199,14 @@ class RenderSettings:
     peak_db : float or None, dBFS
         Peak level the render is normalised to (-120..0); None keeps the
         absolute scale.  Default -1.
-    max_modes : int
-        Modes computed (1 .. :data:`MAX_MODES`), before those at or above
-        Nyquist are dropped.  Default 256.
+    max_modes : int or "auto"
+        "auto" (the default): every mode below Nyquist (``sample_rate / 2``)
+        is computed, at most :data:`MAX_MODES` (more is an error naming this
+        key).  A number (1 .. :data:`MAX_MODES`): the lowest that many modes;
+        those at or above Nyquist are left out (the table's parameters say how
+        many), and a count that stops below Nyquist is reported with the
+        level of the modes it leaves out (a warning above -60 dB re the
+        strongest; :func:`synth.pipeline.partial_table`).
     peak : {"true", "sample"}
         What `peak_db` normalises: the true (inter-sample) peak of ITU-R
         BS.1770-4 Annex 2 (the default: no reconstructed overs) or the
@@ -198,13 +217,57 @@ class RenderSettings:
     sample_rate: int = 48000  # Hz
     bit_depth: int = 24
     peak_db: float | None = -1.0  # dBFS; None keeps the absolute scale
-    max_modes: int = 256
+    max_modes: int | str = "auto"  # or a number of modes
     peak: str = "true"
 
 
 @dataclass(frozen=True)
 class Patch:
-    """A validated patch.  `lines` maps dotted keys to their line in `source`."""
+    """A validated patch: a vibrating object, how it is excited and heard, how it is rendered.
+
+    Made by :func:`load_patch`, :func:`patch_from_text` or
+    :func:`patch_from_mapping`, which check every key; every value is in SI
+    units.  Frozen: change one with :func:`dataclasses.replace` or
+    :func:`retune`.
+
+    Attributes
+    ----------
+    name : str
+        Letters, digits, '-' and '_' (used in file names).
+    resonator : object
+        The resonator's frozen spec (``resonator.TYPE`` is "string",
+        "membrane", "bar", "plate", "air_column" or "partials").
+    excitation : Excitation
+    pickup : Pickup
+    damping : Damping
+    render : RenderSettings
+    coupling : object or None
+        An instrument key's coupling to its neighbours
+        (:class:`synth.coupling.KeyCoupling`); None for a patch file.
+    source : str
+        The file it came from, named in its errors.
+    lines : dict of str -> int
+        Dotted key -> line in `source` (not compared).
+    origins : dict of str -> str
+        Dotted key -> the command-line option that set it (not compared);
+        its errors name the option instead of a line.
+
+    Examples
+    --------
+    >>> import synth
+    >>> patch = synth.patch_from_text('''
+    ... name: bench-nylon
+    ... resonator: {type: string, material: nylon, length: 300 mm, diameter: 0.8 mm, pitch: G4}
+    ... excitation: {type: pluck, position: 0.3}
+    ... render: {duration: 50 ms, sample_rate: 8000}
+    ... ''')
+    >>> patch.name, patch.resonator.TYPE, patch.excitation.kind
+    ('bench-nylon', 'string', 'pluck')
+    >>> patch.render.duration, patch.render.sample_rate, patch.render.bit_depth
+    (0.05, 8000, 24)
+    >>> patch.lines["resonator"], patch.lines["render.sample_rate"]
+    (3, 5)
+    """
 
     name: str
     resonator: object
@@ -215,9 +278,12 @@ class Patch:
     coupling: object = None  # synth.coupling.KeyCoupling of an instrument's key; None for a patch file
     source: str = "<patch>"
     lines: dict = field(default_factory=dict, compare=False)
+    origins: dict = field(default_factory=dict, compare=False)  # dotted key -> the option that set it
 
     def error(self, key, message):
-        """A PatchError for dotted `key`, naming this patch's file and line."""
+        """A PatchError for dotted `key`, naming this patch's file and line (or the option that set it)."""
+        if key in self.origins:
+            return PatchError(message, file=COMMAND_LINE, key=self.origins[key])
         return PatchError(message, file=self.source, line=self.lines.get(key), key=key)
 
 
@@ -271,7 +337,8 @@ _RENDER_FIELDS = {
     "sample_rate": Field("frequency", default=48000, low=MIN_SAMPLE_RATE, high=MAX_SAMPLE_RATE, whole=True),
     "bit_depth": Field("choice", default=24, choices=(16, 24, 32)),
     "peak_db": Field("level", default=-1.0, nullable=True, high=0.0, low=-120.0),
-    "max_modes": Field("int", default=256, low=1, high=MAX_MODES),
+    "max_modes": Field("int", default="auto", low=1, high=MAX_MODES, keywords=("auto",),
+                       takes=f"a whole number of modes, 1 .. {MAX_MODES}, or auto (every mode below Nyquist)"),
     "peak": Field("choice", default="true", choices=("true", "sample")),
 }
 
@@ -397,7 +464,7 @@ def patch_from_mapping(mapping, *, file="<patch>", overrides=None):
     """
     if not isinstance(mapping, dict):
         raise PatchError("a patch must be a mapping with keys name, resonator, excitation, pickup, damping, render", file=file, line=1)
-    mapping = _apply_overrides(mapping, overrides or {}, file)
+    mapping = apply_overrides(mapping, overrides or {}, file)
     top = Section(mapping, file=file)
     top_values = read_section(top, _TOP)
     spec = _build_resonator(top.child("resonator", _RESONATOR_TAKES))
@@ -435,31 +502,54 @@ def patch_from_mapping(mapping, *, file="<patch>", overrides=None):
         render=render,
         source=file,
         lines=lines,
+        origins=_collect_lines(mapping, attribute="origins"),
     )
     _check_size(patch, overrides or {})
     return patch
 
 
-def _apply_overrides(mapping, overrides, file):
+def apply_overrides(mapping, overrides, file="<patch>"):
+    """A copy of `mapping` with command-line values set at their dotted keys.
+
+    Parameters
+    ----------
+    mapping : dict (a LineDict from :mod:`synth.yamlio`)
+    overrides : dict
+        ``{"resonator.diameter": (value, "--set resonator.diameter"), ...}``:
+        a key path of any depth and the option that gave it.  Missing
+        sections are created; setting the pitch drops the keys it replaces
+        (``PITCH_REPLACES``: a string's tension) and setting one of those
+        drops the pitch.  Each set key remembers its option (``origins``), so
+        its errors name the option instead of a line of `file`.
+
+    Raises
+    ------
+    PatchError
+        A key path that runs through a value that is not a mapping.
+    """
     if not overrides:
         return mapping
     mapping = copy.deepcopy(mapping)
     for dotted, (value, option) in overrides.items():
-        section_name, key = dotted.split(".")
-        section = mapping.get(section_name)
-        if not isinstance(section, dict):
-            section = LineDict()
-            mapping[section_name] = section
-        if key == "pitch" and section_name == "resonator":
-            try:
-                replaced = resonator_module(section.get("type")).PITCH_REPLACES
-            except (ImportError, KeyError):  # no or unknown type: the loader says so next
-                replaced = ()
-            for other in replaced:
-                section.pop(other, None)
+        *parents, key = dotted.split(".")
+        section, walked = mapping, []
+        for name in parents:
+            walked.append(name)
+            child = section.get(name)
+            if child is None:
+                child = LineDict()
+                section[name] = child
+            elif not isinstance(child, dict):
+                raise PatchError(f"{'.'.join(walked)} is {short_repr(child)} here, not a mapping: set "
+                                 f"{'.'.join(walked)} itself", file=COMMAND_LINE, key=option)
+            section = child
+        if parents == ["resonator"]:
+            _drop_replaced(section, key)
         section[key] = value
         if hasattr(section, "lines"):
             section.lines[key] = None
+        if isinstance(section, LineDict):
+            section.origins[key] = option
         if dotted.startswith("render.") and key in _RENDER_FIELDS:
             convert_option(_RENDER_FIELDS[key], value, option)
         elif dotted == "resonator.pitch":
@@ -467,15 +557,29 @@ def _apply_overrides(mapping, overrides, file):
     return mapping
 
 
-def _collect_lines(mapping, prefix=""):
+def _drop_replaced(section, key):
+    """Setting a resonator's pitch drops what it replaces (a string's tension), and the other way round."""
+    try:
+        replaced = resonator_module(section.get("type")).PITCH_REPLACES
+    except (ImportError, KeyError, TypeError):  # no or unknown type: the loader says so next
+        return
+    if key == "pitch":
+        for other in replaced:
+            section.pop(other, None)
+    elif key in replaced:
+        section.pop("pitch", None)
+
+
+def _collect_lines(mapping, prefix="", attribute="lines"):
+    """{dotted key: line} of every key of `mapping` whose line is known (``attribute="origins"``: its option)."""
     lines = {}
     for key, value in mapping.items():
         dotted = f"{prefix}{key}"
-        line = getattr(mapping, "lines", {}).get(key)
+        line = getattr(mapping, attribute, {}).get(key)
         if line is not None:
             lines[dotted] = line
         if isinstance(value, dict):
-            lines.update(_collect_lines(value, dotted + "."))
+            lines.update(_collect_lines(value, dotted + ".", attribute))
     return lines
 
 
@@ -488,7 +592,8 @@ def _check_size(patch, overrides):
     from .tone import AUTO_CAP_S
 
     duration = AUTO_CAP_S if patch.render.duration == "auto" else patch.render.duration
-    need = estimate_render_bytes(duration, patch.render.sample_rate, patch.render.max_modes)
+    n_modes = MAX_MODES if patch.render.max_modes == "auto" else patch.render.max_modes  # auto: at most the ceiling
+    need = estimate_render_bytes(duration, patch.render.sample_rate, n_modes)
     if need > MEMORY_LIMIT_BYTES:
         for key in ("render.duration", "render.sample_rate", "render.max_modes"):
             if key in overrides:
@@ -511,6 +616,58 @@ def load_patch(path, *, overrides=None):
     Parameters
     ----------
     path : str or os.PathLike
+        A YAML patch file (format in README.md, "Patch reference").
+    overrides : dict or None
+        ``{"render.duration": (value, "--duration"), ...}``: values that
+        replace the file's; see :func:`patch_from_mapping`.
+
+    Returns
+    -------
+    Patch
+
+    Raises
+    ------
+    InputFileError
+        If the file is missing, unreadable or not YAML (a PatchError).
+    PatchError
+        Naming the file, line and key of the first problem.
+
+    Examples
+    --------
+    >>> import pathlib, tempfile
+    >>> import synth
+    >>> text = '''
+    ... name: steel-tine
+    ... resonator: {type: string, material: music-wire, length: 250 mm, diameter: 0.5 mm, tension: 80 N}
+    ... render: {duration: 0.1 s, sample_rate: 16000}
+    ... '''
+    >>> with tempfile.TemporaryDirectory() as folder:
+    ...     path = pathlib.Path(folder) / "steel-tine.yaml"
+    ...     _ = path.write_text(text)
+    ...     patch = synth.load_patch(path)
+    >>> patch.name, patch.resonator.tension
+    ('steel-tine', 80.0)
+    >>> with tempfile.TemporaryDirectory() as folder:
+    ...     path = pathlib.Path(folder) / "bad.yaml"
+    ...     _ = path.write_text(text.replace("250 mm", "-250 mm"))
+    ...     try:
+    ...         synth.load_patch(path)
+    ...     except synth.PatchError as error:
+    ...         print(error.line, error.key, error.message)
+    3 resonator.length must be > 0, got '-250 mm' = -0.25 m
+    """
+    return patch_from_mapping(load_yaml_file(path), file=str(path), overrides=overrides)
+
+
+def patch_from_text(text, *, file="<text>", overrides=None):
+    """Validate a patch given as YAML text.
+
+    Parameters
+    ----------
+    text : str
+        The YAML of a patch, as a patch file holds it.
+    file : str
+        Name for error messages (default ``"<text>"``).
     overrides : dict or None
         See :func:`patch_from_mapping`.
 
@@ -521,31 +678,100 @@ def load_patch(path, *, overrides=None):
     Raises
     ------
     PatchError
-        Naming the file, line and key of the first problem.
+        Naming `file`, the line and the key of the first problem and what is
+        allowed.
+
+    Examples
+    --------
+    >>> import synth
+    >>> patch = synth.patch_from_text('''
+    ... name: frame-skin
+    ... resonator: {type: membrane, shape: circle, radius: 20 cm, tension: 2 kN/m, areal_density: 0.25 kg/m^2}
+    ... excitation: {type: strike, position: {radius: 0.5}}
+    ... render: {duration: 0.1 s, sample_rate: 8000, max_modes: 8}
+    ... ''')
+    >>> patch.resonator.TYPE, patch.excitation.contact_time
+    ('membrane', 0.001)
+    >>> synth.patch_from_text('''
+    ... name: typo
+    ... resonator: {type: sting}
+    ... ''', file="typo.yaml")  # doctest: +ELLIPSIS
+    Traceback (most recent call last):
+    ...
+    synth.errors.PatchError: typo.yaml:3: resonator.type: 'sting' is not allowed; did you mean 'string'? (allowed: ...)
     """
-    return patch_from_mapping(load_yaml_file(path), file=str(path), overrides=overrides)
-
-
-def patch_from_text(text, *, file="<text>", overrides=None):
-    """Validate a patch given as YAML text."""
     return patch_from_mapping(load_yaml_text(text, file=file), file=file, overrides=overrides)
 
 
-def retune(patch, pitch_hz, *, cache=None):
-    """A copy of `patch` whose lowest mode sounds at `pitch_hz`.
+#: What :func:`retune` takes as a pitch: the field a patch's ``resonator.pitch`` is read with.
+_PITCH = Field("pitch", positive=True)
 
-    Moves the parameter a maker would move (tension for a string).  The
-    retuned spec is computed once per (spec, pitch) in `cache` (default: the
-    process-wide :data:`synth.solvecache.DEFAULT_CACHE`).
+
+def retune(patch, pitch=None, *, cache=None, pitch_hz=None):
+    """A copy of `patch` whose lowest mode sounds at `pitch`.
+
+    Moves the parameter a maker would move (the tension of a string, the
+    length of a bar, the thickness of a plate, ...), exactly as the
+    ``render --pitch`` option does.  The retuned object is computed once per
+    (object, pitch) in `cache`.
+
+    Parameters
+    ----------
+    patch : Patch
+    pitch : str or float
+        As a patch's ``resonator.pitch`` takes it: a note name (``"C4"``,
+        ``"A#3"``, ``"Bb2"``; A4 = 440 Hz, 12-TET, C4 = middle C), a
+        frequency in Hz (``261.6``) or a frequency with its unit
+        (``"261.6 Hz"``, ``"1.2 kHz"``); 0.01 Hz .. 1 MHz.
+    cache : SolveCache or None
+        Where the retune is computed (default: the process-wide
+        :data:`synth.solvecache.DEFAULT_CACHE`).
+    pitch_hz : float or None, Hz
+        The former name of `pitch` (a frequency in Hz), still accepted; give
+        one of the two.
+
+    Returns
+    -------
+    Patch
+        A new patch; `patch` itself is unchanged.
 
     Raises
     ------
     PatchError
-        If the object cannot reach `pitch_hz` (names ``resonator.pitch``).
+        If `pitch` is not a pitch (key ``pitch``: the message says what is
+        allowed), or the object cannot reach it (key ``resonator.pitch``,
+        naming the patch's file).  PatchError is a ValueError.
+
+    Examples
+    --------
+    >>> import synth
+    >>> patch = synth.patch_from_text('''
+    ... name: bench-nylon
+    ... resonator: {type: string, material: nylon, length: 300 mm, diameter: 0.8 mm, pitch: G4}
+    ... render: {duration: 0.05 s, sample_rate: 8000, max_modes: 12}
+    ... ''')
+    >>> round(synth.partial_table(synth.retune(patch, "A4")).fundamental_hz, 3)
+    440.0
+    >>> round(synth.partial_table(synth.retune(patch, "0.3 kHz")).fundamental_hz, 3)
+    300.0
+    >>> def tension(p):
+    ...     return synth.partial_table(p).parameters["tension_n"]
+    >>> round(tension(synth.retune(patch, 196.0)) / tension(patch), 2)  # an octave down: a quarter
+    0.25
+    >>> synth.retune(patch, "H4")
+    Traceback (most recent call last):
+    ...
+    synth.errors.PatchError: pitch: 'H4' is not a pitch: give a note name (A4, C#3, Bb1) or a frequency (e.g. '110 Hz')
     """
-    if not (math.isfinite(pitch_hz) and pitch_hz > 0):
-        raise ValueError(f"pitch_hz={pitch_hz!r} must be > 0")
+    if (pitch is None) == (pitch_hz is None):
+        raise TypeError("retune() takes one pitch: give pitch (or its former name pitch_hz), not both or neither")
+    given = pitch if pitch_hz is None else pitch_hz
     try:
-        return replace(patch, resonator=(DEFAULT_CACHE if cache is None else cache).retune(patch.resonator, pitch_hz))
+        frequency = convert(_PITCH, given)
+    except ValueError as error:
+        key = "pitch" if pitch_hz is None else "pitch_hz"
+        raise PatchError(str(error), key=key) from None
+    try:
+        return replace(patch, resonator=(DEFAULT_CACHE if cache is None else cache).retune(patch.resonator, frequency))
     except UnreachablePitch as error:
         raise patch.error("resonator.pitch", str(error)) from None

@@ -21,7 +21,7 @@ import math
 import re
 from dataclasses import dataclass
 
-from .errors import PatchError, option_error
+from .errors import COMMAND_LINE, PatchError, option_error
 from .units import UNITS, parse_pitch, parse_quantity, short_repr
 
 __all__ = ["Field", "Section", "read_section", "check_keys", "convert", "convert_option", "KIND_BOUNDS", "SLUG"]
@@ -135,6 +135,9 @@ class Section:
         return f"{self.path}.{key}" if self.path else str(key)
 
     def error(self, key, message):
+        origin = getattr(self.mapping, "origins", {}).get(key)
+        if origin is not None:  # set on the command line: name the option, not a line of the file
+            return PatchError(message, file=COMMAND_LINE, key=origin)
         return PatchError(message, file=self.file, line=self.line(key), key=self.key(key) if key is not None else self.path or None)
 
     def missing(self, key, field=None):
@@ -251,8 +254,8 @@ def convert(field, value):
         takes = _takes(field)
         raise ValueError(f"must have a value, not null: give {takes}" if takes else "must have a value, not null")
     kind = field.kind
-    if isinstance(value, str) and value in field.keywords:
-        return value
+    if isinstance(value, str) and value.strip().lower() in field.keywords:  # auto, AUTO, " auto"
+        return value.strip().lower()
     if kind == "any":
         return value
     if kind == "bool":
@@ -279,7 +282,8 @@ def convert(field, value):
         return match
     if kind == "int":
         if isinstance(value, bool) or not isinstance(value, int):
-            raise ValueError(f"must be a whole number, got {_describe(value)}")
+            takes = field.takes if field.keywords and field.takes else "a whole number"
+            raise ValueError(f"must be {takes}, got {_describe(value)}")
         number = value
     elif kind == "pitch":
         if isinstance(value, bool):

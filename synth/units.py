@@ -19,6 +19,7 @@ import numpy as np
 
 __all__ = [
     "UNITS",
+    "counted",
     "parse_quantity",
     "note_to_midi",
     "midi_number",
@@ -80,6 +81,11 @@ class _ShortRepr(reprlib.Repr):
 
 _SHORT = _ShortRepr()
 _SHORT_MAX = 80  # characters of a value echoed in a message
+
+
+def counted(count, noun, plural=None):
+    """``"1 note"``, ``"3 notes"``: `count` with `noun` in the right number (`plural` for irregular ones)."""
+    return f"{count} {noun if count == 1 else (plural or noun + 's')}"
 
 
 def short_repr(value):

@@ -85,6 +85,8 @@ def voice_patch(patch, *, midi_note=None, pitch_hz=None, velocity=REFERENCE_VELO
         pitch_hz = float(midi_to_hz(midi_note, a4_hz=A4_HZ if a4_hz is None else a4_hz))
     if pitch_hz is not None:
         patch = retune(patch, pitch_hz * 2.0 ** (detune_cents / 1200.0), cache=cache)
+    if velocity == REFERENCE_VELOCITY:  # as written, exactly (strength * 100 / 100 may round)
+        return patch
     excitation = replace(
         patch.excitation,
         strength=velocity_strength(patch.excitation.strength, velocity),

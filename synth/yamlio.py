@@ -43,12 +43,14 @@ MAX_YAML_BYTES = 2 * 2**20
 
 
 class LineDict(dict):
-    """A dict with ``.line`` (its own line) and ``.lines[key]`` (each key's line)."""
+    """A dict with ``.line`` (its own line), ``.lines[key]`` (each key's line) and
+    ``.origins[key]`` (the command-line option that set a key, e.g. ``--set resonator.length``)."""
 
     def __init__(self, *args, **kwargs):
         super().__init__(*args, **kwargs)
         self.line = None
         self.lines = {}
+        self.origins = {}
 
 
 class _TooManyValues(Exception):

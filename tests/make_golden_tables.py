@@ -43,8 +43,13 @@ CASES = [(p.name, None, None) for p in sorted((ROOT / "patches").glob("*.yaml"))
 ]
 
 
+#: Demo patches retired since the golden file was written, kept as they were for its cases.
+RETIRED = ROOT / "tests" / "data" / "patches"
+
+
 def case_table(name, midi, velocity):
-    patch = load_patch(ROOT / "patches" / name)
+    path = ROOT / "patches" / name
+    patch = load_patch(path if path.exists() else RETIRED / name)
     if midi is not None:
         patch = voice_patch(patch, midi_note=midi, velocity=velocity)
     table = partial_table(patch)

@@ -614,7 +614,7 @@ def test_pitch_override_replaces_length(tmp_path, capsys):
     assert main(["modes", str(tmp_path / "p.yaml"), "--pitch", "A5", "--json"]) == 0
     assert json.loads(capsys.readouterr().out)["fundamental_hz"] == pytest.approx(880.0, rel=1e-10)
     status, _, err = run(capsys, "modes", str(tmp_path / "p.yaml"), "--pitch", "20 kHz")
-    assert status == 2 and "resonator.pitch" in error_line(err) and "above what this bar can reach" in err
+    assert status == 2 and "command line: --pitch: " in error_line(err) and "above what this bar can reach" in err
 
 
 STRING_PATCH = """\

@@ -569,7 +569,7 @@ def test_bad_spec(tmp_path, monkeypatch, capsys, text, line, key, phrase):
 
 BAD_OPTIONS = [
     pytest.param(["--workers", "0"], r"^synth: error: command line: --workers: must be a whole number >= 1, got 0$", id="workers-0"),
-    pytest.param(["--workers", "two"], r"^synth: error: argument --workers: invalid int value: 'two'", id="workers-text"),
+    pytest.param(["--workers", "two"], r"^synth: error: command line: --workers: must be a whole number, got 'two'", id="workers-text"),
     pytest.param(["--workers", "2", "--scheduler", "tcp://127.0.0.1:8786"], r"command line: --workers: give --workers .* not both", id="both"),
     pytest.param(["--scheduler", "nonsense"], r"^synth: error: command line: --scheduler: 'nonsense' is not a scheduler address", id="bad-address"),
     pytest.param(["--output", "rig.yaml"], r"^synth: error: command line: --output: 'rig\.yaml' exists and is not a folder", id="output-file"),

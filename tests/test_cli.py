@@ -44,9 +44,9 @@ def test_modes_table_text(capsys):
     patch = next(p for p in PATCHES if "monochord" in p.name)
     assert main(["modes", str(patch)]) == 0
     out = capsys.readouterr().out
-    for header in ("freq Hz", "ratio", "cents", "T60 s", "level dB", "harm", "ovt", "wavelen m", "nodes", "antinodes"):
+    for header in ("freq Hz", "ratio", "cents", "T60 s", "level dB", "harmonic", "overtone", "wavelength mm", "nodes", "antinodes"):
         assert header in out
-    assert "tension: 120 N" in out
+    assert "tension: 120.0 N" in out
 
 
 def test_modes_json_and_csv(tmp_path, capsys):
@@ -61,12 +61,12 @@ def test_modes_json_and_csv(tmp_path, capsys):
         assert key in first
     freqs = [m["frequency_hz"] for m in report["modes"]]
     assert freqs == sorted(freqs)
-    rows = list(csv.DictReader(csv_path.open()))
+    rows = list(csv.DictReader(line for line in csv_path.open() if not line.startswith("#")))  # after the parameter block
     assert len(rows) == len(report["modes"])
     assert float(rows[0]["frequency_hz"]) == pytest.approx(first["frequency_hz"], rel=1e-9)
 
 
-def test_nyquist_modes_dropped_and_named(write_patch, capsys):
+def test_nyquist_modes_dropped_and_counted(write_patch, capsys):
     patch = write_patch(
         """\
         name: high
@@ -77,7 +77,12 @@ def test_nyquist_modes_dropped_and_named(write_patch, capsys):
     assert main(["modes", str(patch), "--json"]) == 0
     report = json.loads(capsys.readouterr().out)
     assert all(m["frequency_hz"] < 4000 for m in report["modes"])
-    assert any("Nyquist" in w and "n=" in w for w in report["warnings"])
+    # Leaving out the modes at or above Nyquist is expected: information, not a warning (issue 13).
+    assert not any("Nyquist" in w for w in report["warnings"])
+    parameters = report["parameters"]
+    assert parameters["modes_limit"] == "every mode below Nyquist"
+    assert parameters["nyquist_hz"] == parameters["bandwidth_hz"] == 4000.0
+    assert parameters["modes_above_nyquist"] == 40 - len(report["modes"]) > 0
 
 
 def test_node_gives_null_level(write_patch, capsys):

@@ -419,7 +419,7 @@ _CHEAP = {
     "sample_rate": [0, -1, 999, 1000, 1000.5, 8000, "8 kHz", "8000 Hz", "8000", 8000.0, "8000.5 Hz", 44100,
                     "44.1 kHz", 768000, 768001, "768 kHz", "1 MHz", _NAN, _INF, 1e308, None, "", "fast", [8000],
                     True, 2**64, "8 s"],
-    "max_modes": [0, -1, 1, 2, 3, 200, 201, 20001, 10**9, 2.5, 3.0, "12", "12 modes", _NAN, _INF, None, True,
+    "max_modes": [0, -1, 1, 2, 3, 200, 201, 200001, "auto", "AUTO", 10**9, 2.5, 3.0, "12", "12 modes", _NAN, _INF, None, True,
                   [], "max", 2**64],
     "notes": [[], ["A2"], ["A2", "A2"], ["A2", 45], [21, 108], ["C-1"], [0], [127], [128], [-1], ["H2"], "A2", 45,
               None, _NAN, {}, [None], [[45]], [{"from": "A2"}], ["A2 Hz"], ["110 Hz"], [45.5], [True],
@@ -711,7 +711,7 @@ _RENDER_OPTIONS = st.one_of(
     _option("--pitch", _CHOICES["pitch"] + ["", "H2", "-3 Hz", "nan Hz", "1e999"]),
     _option("--duration", [0, "1 ms", "0.05 s", "auto", "nan", "-1", "1e9 s", "50 mm"]),
     _option("--sample-rate", [1000, 8000, "8 kHz", 768000, 999, 8000.5, "nan", "0", "1e9"]),
-    _option("--max-modes", [1, 3, 0, -1, 20001, "2.5", "x"]),
+    _option("--max-modes", [1, 3, 0, -1, 200001, "auto", "2.5", "x"]),
     _option("--bit-depth", [16, 24, 32, 8, "24.0", "x"]),
 )
 _RENDER_OUTPUTS = st.sampled_from(["out.wav"] * 20 + ["out.flac", "sub/out.wav", "out.WAV", "out", "out.mp3",

@@ -38,7 +38,7 @@ ONE_CENT = 5.8e-4  # rtol of one cent: 2**(1/1200) - 1
 # j_mn as tabulated in REFERENCES.md sec. 3: computed there [C] with scipy and matching
 # Abramowitz & Stegun (1964) table 9.5 (table number from memory); of these, 2.40483,
 # 5.52008, 8.65373, 3.83171 and 5.13562 were seen in a published excerpt. The independent
-# check is the Brent search on J_m below, not scipy's jn_zeros (which the module uses).
+# check is the Brent search on J_m below, not scipy's jn_zeros (the module uses it for order 0 only; higher orders come from its own recurrence).
 AS_TABLE_95 = {
     (0, 1): 2.404826, (0, 2): 5.520078, (0, 3): 8.653728,
     (1, 1): 3.831706, (1, 2): 7.015587, (1, 3): 10.173468,

@@ -107,7 +107,12 @@ class TestTable:
     def test_max_modes_keeps_the_lowest(self):
         table = _table(PATCH.replace("max_modes: 64", "max_modes: 2"))
         assert table.labels == ("p1", "p2")
-        assert any("2 of 4 partials above max_modes (2) left out: p3, p4" in w for w in table.warnings)
+        # The cut is reported as for any resonator (issue 13): p4, given -3 dB, is the loudest left out.
+        assert table.parameters["modes_limit"] == "render.max_modes"
+        assert table.parameters["omitted_mode"] == "p4"
+        assert table.parameters["omitted_mode_level_db"] == pytest.approx(-3.0, abs=1e-9)
+        assert table.warnings == ("render.max_modes 2 cuts the series at 693 Hz: the loudest of the next 2 modes, "
+                                  "p4 at 1554 Hz, is at -3 dB re the strongest; use max_modes: auto",)
 
     def test_units_in_lists(self):
         text = PATCH.replace("[1.2, 0.8, 0.5, 0.35]", "[1.2 s, 800 ms, 0.5, 350 ms]").replace("[0, -6, -12, -3]", "[0 dB, -6 dB, -12, -3]")

@@ -544,7 +544,7 @@ def test_pitch_option_replaces_thickness(tmp_path, capsys):
     assert report["parameters"]["thickness_m"] == pytest.approx(1e-3 * 500 / 248.349036, rel=1e-6)
     assert main(["modes", str(path), "--pitch", "9 kHz"]) == 2
     out, err = capsys.readouterr()
-    assert out == "" and re.search(r"resonator\.pitch: pitch 9000 Hz would need a 36\.24 mm thick plate", err), err
+    assert out == "" and re.search(r"command line: --pitch: pitch 9000 Hz would need a 36\.24 mm thick plate", err), err
 
 
 def test_base_plate_patch_is_valid(tmp_path, capsys):

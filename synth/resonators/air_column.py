@@ -18,7 +18,11 @@ Positions are fractions of the physical length from the x = 0 end (the closed
 end of a closed-open pipe).  Shapes are scaled to a mean square of 1 over the
 effective length (a common modal mass).  The one-dimensional model holds
 below the cut-on of the first cross mode, ``ka = 1.8412`` (the first zero of
-J_1'); modes at or above it are left out with a warning.
+J_1'); modes at or above it are left out: the model has no more, which a
+table records as information, not a warning (its ``cross_mode_cut_on_hz``,
+and where the cut-on lies below Nyquist ``modes_limit`` "every mode the model
+has" with ``bandwidth_hz``, :func:`synth.pipeline.unweighted_partials`), as
+it does for the modes at or above Nyquist.
 
 References
 ----------
@@ -46,6 +50,7 @@ __all__ = [
     "position_style",
     "modes",
     "solve",
+    "count_below",
     "retune",
     "air_column_modes",
     "speed_of_sound",
@@ -250,13 +255,7 @@ def solve(spec, n_modes):
     n = np.arange(1, n_modes + 1)
     harmonic = _harmonics(spec.ends, n)
     freq = harmonic * _quarter_waves(spec.ends) * c / l_eff
-    keep = freq < cutoff
-    warnings = []
-    if not np.all(keep):
-        warnings.append(
-            f"{np.count_nonzero(~keep)} modes at or above the first cross-mode cut-on ({cutoff:.0f} Hz, "
-            f"ka = {CROSS_MODE_KA:.4f}) left out: the pipe is not one-dimensional there"
-        )
+    keep = freq < cutoff  # the pipe is not one-dimensional above: the model's modes end there
     n, harmonic, freq = n[keep], harmonic[keep], freq[keep]
     wavelength = c / freq
     columns = {
@@ -286,8 +285,17 @@ def solve(spec, n_modes):
         shape=shape,
         columns=columns,
         parameters=parameters,
-        warnings=tuple(warnings),
+        warnings=(),
     )
+
+
+def count_below(spec, limit_hz):
+    """How many plane-wave modes of `spec` lie below `limit_hz` (exact; those at or above the cut-on included)."""
+    lowest = _quarter_waves(spec.ends) * speed_of_sound(spec.temperature) / effective_length(
+        spec.length, spec.radius, spec.ends)
+    steps = limit_hz / lowest  # harmonics of the lowest mode below the limit: n or 2n - 1 of them
+    n = math.ceil(steps) if spec.ends == "open-open" else math.ceil((steps + 1.0) / 2.0)
+    return max(0, int(n) - 1)
 
 
 def air_column_modes(spec, *, excitation_position, pickup_position, n_modes):

@@ -71,6 +71,7 @@ __all__ = [
     "position_style",
     "modes",
     "solve",
+    "count_below",
     "retune",
     "bar_modes",
     "beam_roots",
@@ -152,6 +153,9 @@ class BarSpec:
     pitch_hz : float or None, Hz
         Pitch of the lowest mode, when the length was solved for it.
     material : str
+    shaped_for_hz : float or None, Hz
+        A shaped bar retuned away from the pitch its profile was made for
+        (:func:`retune` keeps it): the report warns that its tuned ratios moved.
     """
 
     length: float
@@ -167,6 +171,7 @@ class BarSpec:
     theory: str = "timoshenko"
     pitch_hz: float | None = None
     material: str = "custom"
+    shaped_for_hz: float | None = None
 
     TYPE: ClassVar[str] = "bar"
 
@@ -270,7 +275,8 @@ def build_spec(values):
     )
     if values["pitch"] is not None:
         try:
-            return retune(spec, values["pitch"])
+            # the pitch the file gives: the bar as made, so no shaped_for_hz
+            return replace(spec, length=solve_length(spec, values["pitch"]), pitch_hz=values["pitch"])
         except UnreachablePitch as error:
             raise SpecError(str(error), key="pitch") from None
     shortest = MIN_LENGTH_RATIO * spec.largest_dimension
@@ -290,8 +296,18 @@ def position_style(spec):
 
 
 def retune(spec, pitch_hz):
-    """The bar with its length solved so the lowest mode sounds at `pitch_hz`."""
-    return replace(spec, length=solve_length(spec, pitch_hz), pitch_hz=pitch_hz)
+    """The bar with its length solved so the lowest mode sounds at `pitch_hz`.
+
+    A shaped bar remembers the pitch its profile was made for (``shaped_for_hz``):
+    scaling the length does not scale the profile's thicknesses, so its tuned
+    ratios move (:func:`synth.pipeline.unweighted_partials` warns).
+    """
+    shaped_for = spec.shaped_for_hz
+    if shaped_for is None and spec.profile is not None:
+        shaped_for = spec.pitch_hz or float(solve(spec, 1).frequency_hz[0])
+    if shaped_for is not None and abs(math.log2(pitch_hz / shaped_for)) < 1e-9:
+        shaped_for = None  # back where it was made
+    return replace(spec, length=solve_length(spec, pitch_hz), pitch_hz=pitch_hz, shaped_for_hz=shaped_for)
 
 
 # --------------------------------------------------------------------------
@@ -454,13 +470,60 @@ def _bracketed_length(spec, pitch_hz, shortest):
 # Modes.
 
 
-def _count_below_ceiling(spec, length, n_modes):
-    """Modes to compute: at most `n_modes`, and those a thin bar has below the ceiling."""
+#: Wavenumbers tried when counting a bar's modes below a frequency (more than any bar computes).
+_COUNTED_ORDERS = 4 * MAX_MODES
+
+
+def _modes_below(spec, length, frequency_hz):
+    """About how many bending modes of `spec` made `length` long lie below `frequency_hz`.
+
+    Mode n has ``beta_n L`` close to ``(n + 1/2) pi`` (free-free,
+    clamped-clamped), ``(n - 1/2) pi`` (clamped-free) or exactly ``n pi``
+    (pinned-pinned) (Blevins [1]_); at that wavenumber the frequency is the
+    thin bar's, or with ``theory: timoshenko`` the lower branch of the
+    pinned-pinned Timoshenko dispersion relation [2]_, which shear and rotary
+    inertia bring below the thin bar's (the rosewood blank of
+    patches/bar-rosewood-blank-c4.yaml has 26 modes below 24 kHz; thin theory
+    counts 22 below 60 kHz, and the old count stopped its table at 21.8 kHz,
+    below Nyquist at 48 kHz).  A shaped bar is taken
+    at its thinnest, which sounds lowest.  Second-spectrum modes (above the
+    shear cut-off) are not counted: callers that need them all grow the count.
+    """
     size = min(spec.profile) if spec.profile else (spec.diameter or spec.thickness)
-    rate = _radius_of_gyration(spec, size) * math.sqrt(spec.youngs_modulus / spec.density) / (2.0 * math.pi * length**2)
+    radius = _radius_of_gyration(spec, size)
     offset = -0.5 if spec.supports == "clamped-free" else (0.0 if spec.supports == "pinned-pinned" else 0.5)
-    n_thin = int(math.sqrt(MODE_CEILING_HZ / rate) / math.pi - offset) + 2
-    return max(1, min(n_modes, n_thin, MAX_MODES))
+    k = (np.arange(1, _COUNTED_ORDERS + 1) + offset) * math.pi / length
+    if spec.theory == "timoshenko":
+        omega = _timoshenko_omega(k, radius, spec.youngs_modulus, spec.shear_modulus * shear_coefficient(spec),
+                                  spec.density)
+    else:
+        omega = k * k * radius * math.sqrt(spec.youngs_modulus / spec.density)
+    return int(np.count_nonzero(omega < 2.0 * math.pi * frequency_hz))
+
+
+def _count_below_ceiling(spec, length, n_modes):
+    """Modes to compute: at most `n_modes`, and about those the bar has below the ceiling (two more).
+
+    A shaped bar counts them as a thin bar (its finite-element mesh follows
+    the count, so the count stays what its tables were made with).
+    """
+    if spec.profile is not None:
+        spec = replace(spec, theory="euler-bernoulli")
+    return max(1, min(n_modes, _modes_below(spec, length, MODE_CEILING_HZ) + 2, MAX_MODES))
+
+
+def count_below(spec, limit_hz):
+    """About how many modes of `spec` lie below `limit_hz` (an estimate: see :func:`_modes_below`).
+
+    :meth:`synth.solvecache.SolveCache.solve_below` grows the count when
+    the highest solved mode is still below the limit.  A shaped bar answers
+    with every mode it computes up to :data:`MODE_CEILING_HZ` whatever the
+    limit: its finite-element mesh follows the count, and so its modes do
+    not move with the sample rate (at most :data:`FE_MAX_MODES` of them).
+    """
+    if spec.profile is not None:
+        return min(_count_below_ceiling(spec, spec.length, MAX_MODES), FE_MAX_MODES)
+    return _modes_below(spec, spec.length, limit_hz)
 
 
 def _solve(spec, length, n, *, with_shift=True):

@@ -37,6 +37,7 @@ __all__ = [
     "position_style",
     "modes",
     "solve",
+    "count_below",
     "retune",
     "partials_modes",
     "MAX_PARTIALS",
@@ -44,7 +45,7 @@ __all__ = [
     "PITCH_REPLACES",
 ]
 
-#: Longest list of partials a patch may give (the patch's max_modes ceiling).
+#: Longest list of partials a patch may give (a list in a YAML file: 20,000 is already far past any use).
 MAX_PARTIALS = 20000
 #: Longest per-partial decay time (s), as for the damping section.
 MAX_T60_S = 3600.0
@@ -162,7 +163,9 @@ def solve(spec, n_modes):
     ----------
     spec : PartialsSpec
     n_modes : int >= 1
-        The lowest `n_modes` partials are kept (a warning names the rest).
+        The lowest `n_modes` partials are kept (the pipeline reports the
+        level of those a fixed ``render.max_modes`` leaves out, as for any
+        resonator: :func:`synth.pipeline.weigh`).
 
     Returns
     -------
@@ -172,16 +175,7 @@ def solve(spec, n_modes):
         t60_s / level_override_db where given.
     """
     ratios = np.array(spec.ratios, dtype=float)
-    order = np.argsort(ratios, kind="stable")
-    warnings = []
-    if order.size > n_modes:
-        left = order[n_modes:]
-        warnings.append(
-            f"{left.size} of {order.size} partials above max_modes ({n_modes}) left out: "
-            + ", ".join(f"p{k + 1}" for k in left[:3])
-            + (" ..." if left.size > 3 else "")
-        )
-        order = order[:n_modes]
+    order = np.argsort(ratios, kind="stable")[:n_modes]
     freq = spec.reference_hz * ratios[order]
     columns = {
         "partial": tuple(int(k) + 1 for k in order),
@@ -210,8 +204,18 @@ def solve(spec, n_modes):
         shape=shape,
         columns=columns,
         parameters=parameters,
-        warnings=tuple(warnings),
+        warnings=(),
     )
+
+
+def count_below(spec, limit_hz):
+    """Every partial of the set, as the count for ``render.max_modes: auto``.
+
+    More than the partials below `limit_hz` on purpose: a solve for all of
+    them names none as left out, and the pipeline drops those at or above
+    Nyquist without a word, as for any resonator.
+    """
+    return len(spec.ratios)
 
 
 def partials_modes(spec, *, excitation_position=None, pickup_position=None, n_modes):

@@ -78,6 +78,7 @@ __all__ = [
     "position_style",
     "modes",
     "solve",
+    "count_below",
     "retune",
     "plate_modes",
     "flexural_rigidity",
@@ -411,6 +412,33 @@ def solve(spec, n_modes):
         parameters=parameters,
         warnings=tuple(warnings),
     )
+
+
+#: Beyond this many modes below a frequency a rectangle's count is the area law, not a tally.
+_COUNT_EXACTLY = 10_000_000
+
+
+def count_below(spec, limit_hz):
+    """About how many modes of `spec` lie below `limit_hz`, in the units of :func:`solve`'s table.
+
+    With ``f = lambda**2 sqrt(D / (rho h)) / (2 pi a**2)``: a pinned
+    rectangle counts its modes exactly, ``pi**2 (m**2 + (n a / b)**2) <
+    lambda**2``; a circle estimates its (n, s) pairs (one per cos/sin pair) by
+    Weyl's law, about ``lambda**2 / 8`` (Leissa [1]_; the boundary's
+    correction is left to the growth of
+    :meth:`synth.solvecache.SolveCache.solve_below`).
+    """
+    thickness = spec.thickness if spec.thickness is not None else solve_thickness(spec, spec.pitch_hz)
+    lambda2 = limit_hz / _hz_per_lambda2(spec, thickness)
+    if spec.shape == "circle":
+        return int(lambda2 / 8.0)
+    aspect = spec.width / spec.height
+    bound = lambda2 / math.pi**2  # m**2 + (n aspect)**2 below this
+    if bound / aspect > _COUNT_EXACTLY:
+        return int(math.pi * bound / (4.0 * aspect))
+    m = np.arange(1, int(math.sqrt(bound)) + 1)
+    across = np.sqrt(np.maximum(bound - m.astype(float) ** 2, 0.0)) / aspect
+    return int(np.sum(np.maximum(np.ceil(across) - 1.0, 0.0)))
 
 
 def plate_modes(spec, *, excitation_position, pickup_position, n_modes):

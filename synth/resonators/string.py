@@ -35,6 +35,7 @@ __all__ = [
     "position_style",
     "modes",
     "solve",
+    "count_below",
     "retune",
     "string_modes",
     "linear_density",
@@ -224,19 +225,7 @@ def solve(spec, n_modes):
         parameters tension_n, stress, inharmonicity and the stress as a
         percentage of tensile strength.
     """
-    mu = linear_density(spec.density, spec.diameter)
-    if spec.tension is None:
-        tension = solve_tension(
-            spec.pitch_hz,
-            length=spec.length,
-            diameter=spec.diameter,
-            density=spec.density,
-            youngs_modulus=spec.youngs_modulus,
-            ends=spec.ends,
-        )
-    else:
-        tension = spec.tension
-    b = inharmonicity(spec.youngs_modulus, spec.diameter, tension, spec.length)
+    mu, tension, b = _constants(spec)
     n = np.arange(1, n_modes + 1)
     freq = stiff_string_frequencies(n, length=spec.length, tension=tension, mu=mu, b=b, ends=spec.ends)
     wavelength = 2.0 * spec.length / n
@@ -281,6 +270,43 @@ def solve(spec, n_modes):
         parameters=parameters,
         warnings=tuple(stress_warnings(stress, strength, "string")),
     )
+
+
+def _constants(spec):
+    """(linear density kg/m, tension N (solved for a pitch), inharmonicity B) of `spec`."""
+    mu = linear_density(spec.density, spec.diameter)
+    if spec.tension is None:
+        tension = solve_tension(
+            spec.pitch_hz,
+            length=spec.length,
+            diameter=spec.diameter,
+            density=spec.density,
+            youngs_modulus=spec.youngs_modulus,
+            ends=spec.ends,
+        )
+    else:
+        tension = spec.tension
+    return mu, tension, inharmonicity(spec.youngs_modulus, spec.diameter, tension, spec.length)
+
+
+#: Beyond this many modes below a frequency the count is not worked out exactly (it is over any ceiling).
+_COUNT_EXACTLY = 10_000_000
+
+
+def count_below(spec, limit_hz):
+    """How many modes of `spec` sound below `limit_hz` (exact: the frequencies :func:`solve` gives).
+
+    Stiffness only raises a partial, ``f_n = n f0 sqrt(1 + B n**2) >= n f_1``
+    (Fletcher 1964), so no more than ``limit_hz / f_1`` modes can lie below.
+    """
+    mu, tension, b = _constants(spec)
+    first = float(stiff_string_frequencies([1], length=spec.length, tension=tension, mu=mu, b=b, ends=spec.ends)[0])
+    most = limit_hz / first
+    if most > _COUNT_EXACTLY:
+        return int(most)
+    n = np.arange(1, int(most) + 2)
+    frequency = stiff_string_frequencies(n, length=spec.length, tension=tension, mu=mu, b=b, ends=spec.ends)
+    return int(np.count_nonzero(frequency < limit_hz))
 
 
 def string_modes(spec, *, excitation_position, pickup_position, n_modes):
