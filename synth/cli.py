@@ -32,7 +32,7 @@ BROKEN_PIPE_STATUS = 141
 NUMERIC_ERRORS = (ArithmeticError, MemoryError, RecursionError)
 NUMERIC_HINT = "check that sizes and frequencies are physically sensible"
 SHORT_MESSAGE_CHARS = 80  # of a numeric failure's own message
-#: synth.report.UNIT_SYSTEMS and DEFAULT_UNITS, spelled out so ``synth --help`` needs no numpy (a test keeps them equal).
+#: synth.labels.UNIT_SYSTEMS and DEFAULT_UNITS, spelled out so ``synth --help`` needs no numpy (a test keeps them equal).
 UNIT_SYSTEMS = ("si", "workshop", "imperial")
 DEFAULT_UNITS = "workshop"
 
@@ -355,7 +355,8 @@ def _argparse_message(message):
         (r"one of the arguments (.+) is required", lambda m: (" or ".join(m[1].split()), "give one of them")),
         (r"the following arguments are required: (.+)", lambda m: (m[1], "required, not given")),
         (r"unrecognized arguments: (.+)", lambda m: (m[1].split()[0], "not an option of this command")),
-        (r"argument (\S+): invalid (?:int|float) value: (.+)", lambda m: (m[1], f"must be a whole number, got {m[2]}")),
+        (r"argument (\S+): invalid int value: (.+)", lambda m: (m[1], f"must be a whole number, got {m[2]}")),
+        (r"argument (\S+): invalid float value: (.+)", lambda m: (m[1], f"must be a number, got {m[2]}")),
         (r"argument (\S+): invalid choice: (.+?) \(choose from (.+)\)",
          lambda m: (m[1], f"{m[2]} is not one of {m[3]}")),
         (r"argument (\S+): expected one argument", lambda m: (m[1], "needs a value")),

@@ -7,7 +7,6 @@ from __future__ import annotations
 
 import copy
 import difflib
-import math
 from dataclasses import dataclass, field, replace
 
 from .errors import COMMAND_LINE, PatchError

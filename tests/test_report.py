@@ -23,7 +23,8 @@ from synth.cli import main
 from synth.instrument_file import load_instrument
 from synth.patch import load_patch
 from synth.pipeline import partial_table
-from synth.report import _PARAMETERS, _SOLVED_WORDS, DEFAULT_UNITS, UNIT_SYSTEMS, format_quantity, parameter_lines, table_to_dict
+from synth.labels import _PARAMETERS, _SOLVED_WORDS, DEFAULT_UNITS, UNIT_SYSTEMS, format_quantity, parameter_lines
+from synth.report import table_to_dict
 
 ROOT = Path(__file__).resolve().parents[1]
 GOLDEN = Path(__file__).resolve().parent / "data" / "report"
@@ -217,7 +218,12 @@ def test_table_to_dict_is_the_json(demo_tables):
 def test_report_module_examples():
     import doctest
 
+    import synth.labels
     import synth.report
 
-    failures, tried = doctest.testmod(synth.report, optionflags=doctest.ELLIPSIS)
-    assert tried >= 8 and failures == 0
+    tried = 0
+    for module in (synth.labels, synth.report):
+        failures, count = doctest.testmod(module, optionflags=doctest.ELLIPSIS)
+        assert failures == 0
+        tried += count
+    assert tried >= 8
