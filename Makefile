@@ -11,7 +11,7 @@ setup: $(STAMP)
 $(STAMP): pyproject.toml
 	test -x $(BIN)/python || $(PYTHON) -m venv $(VENV)
 	$(BIN)/python -m pip install --quiet --quiet --upgrade pip
-	$(BIN)/python -m pip install --quiet --quiet -e ".[test,cluster]"
+	$(BIN)/python -m pip install --quiet --quiet -e ".[test,cluster,plot,preview]"
 	touch $(STAMP)
 
 demo: $(STAMP)

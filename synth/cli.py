@@ -274,6 +274,7 @@ def cmd_tune_bar(args):
         MIN_POINTS,
         TuningError,
         parse_ratios,
+        profile_table,
         profile_text,
         tune_undercut,
         tuned_patch_text,
@@ -286,6 +287,12 @@ def cmd_tune_bar(args):
     out = Path(args.output) if args.output else None
     if out is not None:
         check_output_file(out, suffixes=(".yaml", ".yml"), inputs=(args.patch,), key="--output")
+    drawing = Path(args.drawing) if args.drawing else None
+    if drawing is not None:
+        from .plotcmd import check_figure_output
+
+        drawing = check_figure_output(drawing, inputs=(args.patch, out), key="--drawing",
+                                      command="synth tune-bar --drawing")
     if not MIN_POINTS <= args.points <= MAX_POINTS:
         raise option_error(f"must be {MIN_POINTS}..{MAX_POINTS}, got {args.points}", "--points")
     try:
@@ -304,14 +311,21 @@ def cmd_tune_bar(args):
             raise patch.error(error.key, str(error)) from None
         raise option_error(str(error), error.key) from None
     print(tuning_report(tuning, name=patch.name))
+    print(profile_table(tuning))
     if out is None:
         print("profile:  # paste into the patch's resonator section in place of thickness")
         for value in profile_text(tuning.spec.profile):
             print(f"  - {value}")
-        return 0
-    with atomic_output(out, key="--output") as tmp:
-        tmp.write_text(tuned_patch_text(mapping, tuning, source=Path(args.patch).name), encoding="utf-8")
-    print(f"wrote {out}")
+    else:
+        with atomic_output(out, key="--output") as tmp:
+            tmp.write_text(tuned_patch_text(mapping, tuning, source=Path(args.patch).name), encoding="utf-8")
+        print(f"wrote {out}")
+    if drawing is not None:
+        from .plotcmd import write_figure
+        from .plots import bar_profile_drawing
+
+        write_figure(bar_profile_drawing(tuning, name=patch.name), drawing, key="--drawing")
+        print(f"wrote {drawing}")
     return 0
 
 
@@ -344,6 +358,36 @@ def cmd_range(args):
     if args.csv and not args.json:
         print(f"wrote {args.csv}")
     return 0
+
+
+# ---- issue 14: see and hear (each command's work lives in its own module) ----
+
+
+def cmd_plot(args):
+    from .plotcmd import run_plot
+
+    return run_plot(args)
+
+
+def cmd_compare(args):
+    from .compare import run_compare
+
+    return run_compare(args)
+
+
+def cmd_sweep(args):
+    from .sweep import run_sweep
+
+    return run_sweep(args)
+
+
+def cmd_preview(args):
+    from .preview.server import run_preview
+
+    return run_preview(args)
+
+
+# ---- end of issue 14's commands ----
 
 
 def _argparse_message(message):
@@ -477,7 +521,53 @@ def build_parser():
     tune.add_argument("--points", type=int, default=41, help="profile points to report (default 41)")
     tune.add_argument("-o", "--output", help="write the tuned patch (.yaml) here; default: print the profile")
     set_option(tune)
+    tune.add_argument("--drawing", metavar="FILE", help="also draw the tuned profile as a workshop drawing "
+                                                      "(.png, .svg or .pdf: x and cut depth in mm, suspension points)")
     tune.set_defaults(func=cmd_tune_bar)
+
+    # ---- plot (synth/plotcmd.py) ----
+    plot = commands.add_parser("plot", help="draw a patch: partials on the harmonic grid, decays, spectrogram, mode shapes")
+    patch_options(plot)
+    plot.add_argument("-o", "--output", metavar="FILE", help="figure file (.png, .svg or .pdf); default renders/<name>.png")
+    plot.add_argument("--show", default="partials,decay,spectrogram,shapes",
+                      help="which panels, comma-separated: partials, decay, spectrogram, shapes (default: all)")
+    plot.add_argument("--duration", help="override render.duration for the spectrogram (e.g. 2 s)")
+    plot.set_defaults(func=cmd_plot)
+
+    # ---- compare (synth/compare.py) ----
+    compare = commands.add_parser("compare", help="two patches side by side: partials, cents, levels, T60, "
+                                                  "the parameters that differ, an A-then-B audio file")
+    compare.add_argument("first", metavar="A", help="patch file (YAML)")
+    compare.add_argument("second", metavar="B", help="patch file (YAML)")
+    compare.add_argument("--json", action="store_true", help="print the comparison as one JSON object")
+    compare.add_argument("-o", "--output", metavar="FILE", help="write A then B, loudness-matched, to this .wav")
+    compare.add_argument("--rows", type=int, default=None, help="show only the first ROWS partials")
+    units_option(compare)
+    compare.set_defaults(func=cmd_compare)
+
+    # ---- sweep (synth/sweep.py) ----
+    sweep = commands.add_parser("sweep", help="move one key across a range: renders, a table and a figure of how "
+                                              "the partials, ratios, T60 and stress move")
+    sweep.add_argument("patch", help="patch file (YAML)")
+    sweep.add_argument("--vary", required=True, metavar="KEY=FROM..TO",
+                       help="the key and its range, units allowed: --vary resonator.length=\"600 mm..700 mm\"")
+    sweep.add_argument("--steps", type=int, default=5, help="values from FROM to TO, ends included (default 5)")
+    sweep.add_argument("-o", "--output", metavar="DIR", help="folder for the renders, table and figure "
+                                                             "(default renders/<name>-sweep)")
+    sweep.add_argument("--json", action="store_true", help="print the table as one JSON object")
+    sweep.add_argument("--no-audio", dest="audio", action="store_false", help="table and figure only, no renders")
+    set_option(sweep)
+    units_option(sweep)
+    sweep.set_defaults(func=cmd_sweep)
+
+    # ---- preview (synth/preview/) ----
+    preview = commands.add_parser("preview", help="a local page: move a control, hear and see the change, save the patch")
+    preview.add_argument("patch", help="patch file (YAML)")
+    preview.add_argument("--port", type=int, default=8765, help="port on 127.0.0.1 (default 8765; 0: any free port)")
+    preview.add_argument("--host", default="127.0.0.1",
+                         help="address to serve on (default 127.0.0.1, this machine only; any other prints a warning)")
+    preview.add_argument("--no-browser", dest="browser", action="store_false", help="do not open a browser")
+    preview.set_defaults(func=cmd_preview)
     return parser
 
 

@@ -50,6 +50,8 @@ __all__ = [
     "tuning_report",
     "tuned_patch_text",
     "profile_text",
+    "profile_table",
+    "suspension_points",
 ]
 
 #: Cut exponents tried, in order (4: flat-bottomed; 2: parabolic).
@@ -310,6 +312,50 @@ def _plain(value):
 def profile_text(profile):
     """The profile as the list a patch takes, in mm."""
     return [f"{h * 1e3:.4f} mm" for h in profile]
+
+
+def suspension_points(tuning):
+    """The nodes of the tuned bar's first mode (B1), as fractions of its length from the first end.
+
+    A free-free bar is hung at these points (Rossing: the nodes of the
+    fundamental), where its sounding mode hardly moves; the cut moves them
+    from the 0.224 and 0.776 of a uniform bar.  For other supports the list
+    holds the supported ends too.
+    """
+    return tuple(float(x) for x in bar.solve(tuning.spec, 1).columns["node_positions"][0])
+
+
+def profile_table(tuning):
+    """The tuned profile as a printed table: x from the first end, thickness and cut depth (mm), x / length.
+
+    Ends with the suspension points (the nodes of B1, :func:`suspension_points`) in mm from the first end.
+
+    Examples
+    --------
+    >>> import synth
+    >>> from synth.tuning import tune_undercut, profile_table
+    >>> patch = synth.patch_from_text('''
+    ... name: bench-blank
+    ... resonator: {type: bar, material: rosewood, length: 400 mm, width: 50 mm, thickness: 20 mm}
+    ... ''')
+    >>> print(profile_table(tune_undercut(patch.resonator, (1, 4, 10), n_points=13)))  # doctest: +ELLIPSIS
+    profile (x from the first end; cut depth below the 20.00 mm blank):
+          x mm  thickness mm  cut depth mm  x / length
+           0.0         20.00          0.00      0.0000
+    ...
+    suspension points (nodes of B1): ... mm from the first end
+    """
+    spec = tuning.spec
+    length = spec.length
+    h0 = tuning.blank_thickness
+    lines = [f"profile (x from the first end; cut depth below the {h0 * 1e3:.2f} mm blank):",
+             f"{'x mm':>10}{'thickness mm':>14}{'cut depth mm':>14}{'x / length':>12}"]
+    for s, h in zip(np.linspace(0.0, 1.0, len(spec.profile)), spec.profile):
+        lines.append(f"{s * length * 1e3:10.1f}{h * 1e3:14.2f}{(h0 - h) * 1e3:14.2f}{s:12.4f}")
+    nodes = ", ".join(f"{x * length * 1e3:.1f}" for x in suspension_points(tuning))
+    what = "suspension points (nodes of B1)" if spec.supports == "free-free" else "nodes of B1"
+    lines.append(f"{what}: {nodes} mm from the first end")
+    return "\n".join(lines)
 
 
 def tuned_patch_text(mapping, tuning, *, source="patch"):
