@@ -311,8 +311,10 @@ class PartialTable:
     frequency_hz, amplitude, phase, t60_s : ndarray [shape=(M,)]
         What the engine renders: ``a sin(2 pi f t + phase) e^(-ln(1000) t / T60)``.
     level_db : ndarray [shape=(M,)], dB
-        Level relative to the strongest mode; NaN where the excitation or the
-        pickup sits on a node of the mode (null in JSON).
+        Level relative to the strongest mode, each taken when the excitation's
+        force ends (where it starts ringing freely; `amplitude` is referred
+        back to t = 0); NaN where the excitation or the pickup sits on a node
+        of the mode (null in JSON).
     labels : tuple of str
     columns : dict of str -> tuple
         Extra per-mode columns from the resonator.
