@@ -31,6 +31,7 @@ test: $(STAMP)
 bench: $(STAMP)
 	$(BIN)/python benchmarks/engine.py
 	$(BIN)/python benchmarks/e2e.py
+	$(BIN)/python benchmarks/fit.py
 
 clean:
 	rm -rf renders/*.wav .pytest_cache

@@ -75,7 +75,13 @@ def _overrides(args):
         value = getattr(args, attr, None)
         if value is not None:
             overrides[key] = (value, option)
-    for text in getattr(args, "settings", None) or ():
+    return settings(getattr(args, "settings", None), overrides)
+
+
+def settings(texts, overrides=None):
+    """`overrides` ({dotted key: (value, option)}) with every ``--set KEY=VALUE`` of `texts` added; twice is an error."""
+    overrides = dict(overrides or {})
+    for text in texts or ():
         key, value, option = _setting(text)
         if key in overrides:
             raise option_error(f"{key} is already set by {overrides[key][1]}: give it once", option)
@@ -387,7 +393,14 @@ def cmd_preview(args):
     return run_preview(args)
 
 
-# ---- end of issue 14's commands ----
+def cmd_fit(args):
+    from .analysis.fitcmd import run_fit
+
+    return run_fit(args)
+
+
+#: ``synth fit --model`` choices (synth.analysis.fitting.MODELS; kept here so --help loads no numpy).
+FIT_MODELS = ("partials", "string", "bar", "membrane", "plate")
 
 
 def _argparse_message(message):
@@ -537,8 +550,8 @@ def build_parser():
     # ---- compare (synth/compare.py) ----
     compare = commands.add_parser("compare", help="two patches side by side: partials, cents, levels, T60, "
                                                   "the parameters that differ, an A-then-B audio file")
-    compare.add_argument("first", metavar="A", help="patch file (YAML)")
-    compare.add_argument("second", metavar="B", help="patch file (YAML)")
+    compare.add_argument("first", metavar="A", help="patch file (YAML), or a recording of one note (WAV, FLAC, AIFF, OGG)")
+    compare.add_argument("second", metavar="B", help="patch file (YAML), or a recording of one note (WAV, FLAC, AIFF, OGG)")
     compare.add_argument("--json", action="store_true", help="print the comparison as one JSON object")
     compare.add_argument("-o", "--output", metavar="FILE", help="write A then B, loudness-matched, to this .wav")
     compare.add_argument("--rows", type=int, default=None, help="show only the first ROWS partials")
@@ -568,6 +581,31 @@ def build_parser():
                          help="address to serve on (default 127.0.0.1, this machine only; any other prints a warning)")
     preview.add_argument("--no-browser", dest="browser", action="store_false", help="do not open a browser")
     preview.set_defaults(func=cmd_preview)
+
+    # ---- fit (synth/analysis/) ----
+    fit = commands.add_parser("fit", help="a recording's partials (frequency, T60, level, each with its uncertainty), "
+                                          "a model fitted to them, a patch or a calibrated material")
+    fit.add_argument("recording", help="audio file of one note (WAV, FLAC, AIFF, OGG)")
+    fit.add_argument("--pitch", help="the note's pitch, a hint (note name such as A2, or '110 Hz'): helps the search "
+                                     "and the models; ratios are read against the partial nearest it")
+    fit.add_argument("--model", choices=FIT_MODELS, default="partials",
+                     help="partials (the default: the measured set), or fit a string (f0 and inharmonicity B), "
+                          "bar, membrane or plate (their ratio family, residual in cents per partial)")
+    fit.add_argument("--json", action="store_true", help="print the table as one JSON object")
+    fit.add_argument("-o", "--output", metavar="FILE", help="write a patch (.yaml) that resynthesises the recording; "
+                                                            "with --blank, the calibrated material (.yaml)")
+    fit.add_argument("--check", action="store_true", help="render the fitted patch and say how far its spectrum is "
+                                                          "from the recording's")
+    fit.add_argument("--max-modes", dest="max_modes", default=None,
+                     help="keep the strongest N partials")
+    fit.add_argument("--lowest", help="lowest partial to search for (e.g. '40 Hz'; default from --pitch, or 20 Hz)")
+    fit.add_argument("--channel", help="channel of a multichannel file: 1, 2, ... or mix (the default)")
+    fit.add_argument("--blank", metavar="BLANK.yaml", help="the tapped blank's patch (measured length, not pitch): "
+                                                            "calibrate its material's Young's (and shear) modulus")
+    fit.add_argument("--rows", type=int, default=None, help="show only the first ROWS partials")
+    set_option(fit)
+    units_option(fit)
+    fit.set_defaults(func=cmd_fit)
     return parser
 
 

@@ -309,6 +309,33 @@ def match_partials(labels_a, labels_b, *, by_label):
     return pairs, only_a, [j for j in range(len(labels_b)) if j not in paired_b]
 
 
+#: A recorded partial pairs with the nearest partial of the other side within this interval.
+NEAREST_CENTS = 50.0
+
+
+def match_nearest(table_a, table_b, *, tolerance_cents=NEAREST_CENTS):
+    """Pairs of partials nearest in frequency (one-to-one, within `tolerance_cents`), for a recording.
+
+    A recording has no labels and misses the modes its microphone or the
+    strike did not catch, so order means nothing; modes that sit on a node
+    (no level) are left out of the pairing.  Returns ``(pairs, only_a,
+    only_b)`` as :func:`match_partials` does; the pairing minimises the sum of
+    squared cents (:func:`synth.analysis.matching.assign_modes`).
+    """
+    from .analysis.matching import assign_modes
+
+    heard_b = np.flatnonzero(np.isfinite(np.asarray(table_b.level_db, dtype=float)))
+    heard_a = np.flatnonzero(np.isfinite(np.asarray(table_a.level_db, dtype=float)))
+    pairs = []
+    if heard_a.size and heard_b.size:
+        member = assign_modes(np.asarray(table_a.frequency_hz)[heard_a], np.asarray(table_b.frequency_hz)[heard_b],
+                              tolerance_cents=tolerance_cents)
+        pairs = [(int(heard_a[k]), int(heard_b[m])) for k, m in enumerate(member) if m >= 0]
+    paired_a, paired_b = {i for i, _ in pairs}, {j for _, j in pairs}
+    return (pairs, [i for i in heard_a if i not in paired_a],
+            [int(j) for j in heard_b if j not in paired_b])
+
+
 def _level(table, i):
     value = float(table.level_db[i])
     return value if math.isfinite(value) else None
@@ -339,8 +366,12 @@ def compare_tables(table_a, table_b, patch_a, patch_b):
         ``parameter_differences`` (each ``{"key", "a", "b"}``, SI, with
         ``unit`` for patch keys).
     """
-    by_label = table_a.resonator == table_b.resonator
-    pairs, only_a, only_b = match_partials(table_a.labels, table_b.labels, by_label=by_label)
+    recorded = "recording" in (table_a.resonator, table_b.resonator)
+    by_label = table_a.resonator == table_b.resonator and not recorded
+    if recorded:
+        pairs, only_a, only_b = match_nearest(table_a, table_b)
+    else:
+        pairs, only_a, only_b = match_partials(table_a.labels, table_b.labels, by_label=by_label)
     rows = []
     for i, j in pairs:
         fa, fb = float(table_a.frequency_hz[i]), float(table_b.frequency_hz[j])
@@ -357,11 +388,11 @@ def compare_tables(table_a, table_b, patch_a, patch_b):
     a_values, b_values = patch_values(patch_a), patch_values(patch_b)
     resonator = patch_a.resonator.TYPE if patch_a.resonator.TYPE == patch_b.resonator.TYPE else None
     keys = [{"key": k, "a": _json_value(a), "b": _json_value(b), "unit": _SI_UNITS.get(q)}
-            for k, a, b, q in _key_differences(a_values, b_values, resonator)]
+            for k, a, b, q in _key_differences(a_values, b_values, resonator)] if not recorded else []
     params = [{"key": k, "a": _json_value(table_a.parameters.get(k)), "b": _json_value(table_b.parameters.get(k))}
-              for k in differing(table_a.parameters, table_b.parameters)]
+              for k in differing(table_a.parameters, table_b.parameters)] if not recorded else []
     return {
-        "matched_by": "label" if by_label else "frequency order",
+        "matched_by": "nearest frequency" if recorded else "label" if by_label else "frequency order",
         "partials": rows,
         "only_in_a": [_alone(table_a, i) for i in only_a],
         "only_in_b": [_alone(table_b, j) for j in only_b],
@@ -374,6 +405,28 @@ def _side(table, patch, file):
     return {"name": table.name, "file": str(file), "resonator": table.resonator,
             "fundamental_hz": float(table.fundamental_hz), "sample_rate_hz": int(patch.render.sample_rate),
             "n_modes": len(table.frequency_hz), "warnings": list(table.warnings)}
+
+
+def _load_side(path, patch_from_mapping, partial_table):
+    """(patch, table, recording or None) of one side: a patch file, or a recording in place of one.
+
+    A recording's table is its estimated partials (:mod:`synth.analysis`),
+    its patch the ``partials`` patch that resynthesises it (for the keys that
+    differ), and the A-then-B file plays the recording itself from its onset.
+    """
+    from .analysis.recording import (analyse_recording, estimate_table, is_recording, partials_mapping,
+                                     read_recording)
+
+    if not is_recording(path):
+        patch = patch_from_mapping(_load_patch_file(path, "compare"), file=str(path))
+        return patch, partial_table(patch, onset=False), None
+    recording = read_recording(path)
+    estimate = analyse_recording(recording)
+    table = estimate_table(estimate, recording)
+    patch = patch_from_mapping(partials_mapping(table, name=recording.name, sample_rate=recording.sample_rate),
+                               file=str(path))
+    start = int(round(estimate.onset_s * recording.sample_rate))
+    return patch, table, (np.asarray(recording.signal[start:], dtype=np.float64), int(recording.sample_rate))
 
 
 def _load_patch_file(path, what):
@@ -405,7 +458,9 @@ def compare_text(data, table_a, table_b, patch_a, patch_b, *, units, max_rows=No
     for tag, side in (("A", data["a"]), ("B", data["b"])):
         lines.append(f"{tag}: {side['name']} ({side['resonator']} from {side['file']}), fundamental "
                      f"{side['fundamental_hz']:.3f} Hz, {side['n_modes']} mode{'s' * (side['n_modes'] != 1)}")
-    why = "same resonator type" if data["matched_by"] == "label" else "different resonator types"
+    why = {"label": "same resonator type", "frequency order": "different resonator types",
+           "nearest frequency": f"a recording: within {NEAREST_CENTS:.0f} cents, modes on a node left out"}[
+        data["matched_by"]]
     lines.append(f"partials matched by {data['matched_by']} ({why}); cents = 1200 log2(B/A)")
     shown = data["partials"] if max_rows is None else data["partials"][:max_rows]
     if shown:
@@ -422,6 +477,9 @@ def compare_text(data, table_a, table_b, patch_a, patch_b, *, units, max_rows=No
             listed = ", ".join(f"{m['label']} {m['frequency_hz']:.2f} Hz" for m in alone[:8])
             more = f", ... ({len(alone)} in all)" if len(alone) > 8 else ""
             lines.append(f"only in {tag}: {listed}{more}")
+    if data["matched_by"] == "nearest frequency":  # a recording has measured partials, not keys or parameters
+        lines += [f"warning: {tag}: {w}" for tag, side in (("A", data["a"]), ("B", data["b"])) for w in side["warnings"]]
+        return lines
     resonator = patch_a.resonator.TYPE if patch_a.resonator.TYPE == patch_b.resonator.TYPE else None
     diffs = _key_differences(patch_values(patch_a), patch_values(patch_b), resonator)
     lines.append("patch keys that differ:" if diffs else "patch keys that differ: none")
@@ -497,31 +555,40 @@ def _part_level(signal, sample_rate, measure):
     return _rms_db(signal)
 
 
-def _write_pair(out, patch_a, patch_b, args):
-    """Render A and B, match their loudness, write A + gap + B to `out`; the line to print and the JSON."""
+def _write_pair(out, patch_a, patch_b, args, recorded=(None, None)):
+    """Render A and B, match their loudness, write A + gap + B to `out`; the line to print and the JSON.
+
+    A side given as a recording plays the recording (``recorded``: its signal
+    from the onset and its rate); the other side is rendered at its rate.
+    """
     from dataclasses import replace
 
     from .api import render
     from .audio import normalise, write_audio
 
-    rate, own_rate = int(patch_a.render.sample_rate), int(patch_b.render.sample_rate)
-    moved = own_rate != rate
-    if moved:
+    (rec_a, rec_b) = recorded
+    if rec_a is not None and rec_b is not None and rec_a[1] != rec_b[1]:
+        raise option_error(f"the recordings have different sample rates ({rec_a[1]} and {rec_b[1]} Hz): the "
+                           "A-then-B file needs one", "--output")
+    rate = rec_a[1] if rec_a is not None else rec_b[1] if rec_b is not None else int(patch_a.render.sample_rate)
+    own_rate = int(patch_b.render.sample_rate)
+    moved = own_rate != rate and rec_b is None
+    if rec_b is None and own_rate != rate:
         patch_b = replace(patch_b, render=replace(patch_b.render, sample_rate=rate))
-    heard_a = render(patch_a)
+    if rec_a is None and int(patch_a.render.sample_rate) != rate:
+        patch_a = replace(patch_a, render=replace(patch_a.render, sample_rate=rate))
+    a = rec_a[0] if rec_a is not None else np.asarray(render(patch_a).signal, dtype=np.float64)
     try:
-        heard_b = render(patch_b)
+        b = rec_b[0] if rec_b is not None else np.asarray(render(patch_b).signal, dtype=np.float64)
     except PatchError as error:
         if not moved:
             raise
         raise option_error(f"{args.second}: {error.message} (B is rendered at A's sample rate, {rate} Hz, for the "
                            "A-then-B file)", "--output") from None
-    a = np.asarray(heard_a.signal, dtype=np.float64)
-    b = np.asarray(heard_b.signal, dtype=np.float64)
     gain_db, measure, (level_a, level_b), note = match_loudness(a, b, rate)
     gap = int(round(GAP_S * rate))
     pair = np.concatenate([a, np.zeros(gap), b * 10.0 ** (gain_db / 20.0)])
-    bits = int(patch_a.render.bit_depth)
+    bits = int(patch_a.render.bit_depth) if rec_a is None else 24
     scaled, _ = normalise(pair, peak_db=PAIR_PEAK_DBTP, bit_depth=bits, peak="true", sample_rate=rate)
     write_audio(out, scaled, sample_rate=rate, bit_depth=bits, key="--output")
     after_a = _part_level(scaled[: len(a)], rate, measure)
@@ -552,17 +619,13 @@ def run_compare(args):
     out = Path(args.output) if args.output else None
     if out is not None:
         check_output_file(out, suffixes=(".wav",), inputs=(args.first, args.second), key="--output")
-    mapping_a = _load_patch_file(args.first, "compare")
-    mapping_b = _load_patch_file(args.second, "compare")
-    patch_a = patch_from_mapping(mapping_a, file=str(args.first))
-    patch_b = patch_from_mapping(mapping_b, file=str(args.second))
-    table_a = partial_table(patch_a, onset=False)
-    table_b = partial_table(patch_b, onset=False)
+    (patch_a, table_a, heard_a), (patch_b, table_b, heard_b) = (
+        _load_side(path, patch_from_mapping, partial_table) for path in (args.first, args.second))
     data = {"a": _side(table_a, patch_a, args.first), "b": _side(table_b, patch_b, args.second)}
     data.update(compare_tables(table_a, table_b, patch_a, patch_b))
     line, notes = None, []
     if out is not None:
-        line, notes, data["audio"] = _write_pair(out, patch_a, patch_b, args)
+        line, notes, data["audio"] = _write_pair(out, patch_a, patch_b, args, recorded=(heard_a, heard_b))
     if args.json:
         print(json.dumps(data, indent=2, allow_nan=False))
     else:

@@ -8,6 +8,7 @@ from __future__ import annotations
 import copy
 import difflib
 from dataclasses import dataclass, field, replace
+from pathlib import Path
 
 from .errors import COMMAND_LINE, PatchError
 from .excitation import DEFAULT_RELEASE_TIME_S, EXCITATIONS, MEASURES, Pulse, check_measure
@@ -288,8 +289,8 @@ class Patch:
 
 _RESONATOR_TAKES = f"a mapping with type ({', '.join(RESONATOR_TYPES)}) and that object's keys"
 _MATERIAL_TAKES = (
-    f"a material name ({', '.join(sorted(MATERIALS))}) or a mapping of density, youngs_modulus, "
-    "poisson_ratio, tensile_strength"
+    f"a material name ({', '.join(sorted(MATERIALS))}), a mapping of density, youngs_modulus, "
+    "poisson_ratio, tensile_strength, shear_modulus, or a material file (.yaml)"
 )
 
 _TOP = {
@@ -306,7 +307,11 @@ _MATERIAL_FIELDS = {
     "youngs_modulus": Field("pressure", required=True, low=0.0),  # 0: an ideal string, no stiffness
     "poisson_ratio": Field("number", low=-1.0, high=0.5, default=0.3),
     "tensile_strength": Field("pressure", positive=True, nullable=True),
+    "shear_modulus": Field("pressure", positive=True, nullable=True),  # None: isotropic, E / (2 (1 + nu))
 }
+
+#: A material given as a file (``material: rosewood-tapped.yaml``, as ``synth fit --blank`` writes it).
+MATERIAL_FILE_SUFFIXES = (".yaml", ".yml")
 
 _POSITION_1D = Field("number", low=0.0, high=1.0)
 
@@ -343,8 +348,15 @@ _RENDER_FIELDS = {
 
 
 def material_from(section, key="material"):
-    """A :class:`Material` from a name or a mapping of constants."""
+    """A :class:`Material` from a name, a mapping of constants or a material file.
+
+    A file (a value ending in ``.yaml`` or ``.yml``) holds ``material:`` and
+    the mapping; its path is relative to the patch's folder, or to the current
+    folder when the value came from the command line (``--set``).
+    """
     value = section.mapping.get(key)
+    if isinstance(value, str) and value.lower().endswith(MATERIAL_FILE_SUFFIXES):
+        return _material_file(section, key, value)
     if isinstance(value, str):
         if value not in MATERIALS:
             close = difflib.get_close_matches(value, list(MATERIALS), n=1)
@@ -353,8 +365,30 @@ def material_from(section, key="material"):
         return MATERIALS[value]
     if isinstance(value, dict):
         values = read_section(section.child(key), _MATERIAL_FIELDS)
-        return Material("custom", values["density"], values["youngs_modulus"], values["poisson_ratio"], values["tensile_strength"], source="patch")
-    raise section.error(key, f"must be a material name ({', '.join(sorted(MATERIALS))}) or a mapping of constants, got {short_repr(value)}")
+        return Material("custom", values["density"], values["youngs_modulus"], values["poisson_ratio"],
+                        values["tensile_strength"], source="patch", shear_modulus=values["shear_modulus"])
+    raise section.error(key, f"must be {_MATERIAL_TAKES}, got {short_repr(value)}")
+
+
+def _material_file(section, key, value):
+    """The :class:`Material` of the material file `value` named at `key` of `section`."""
+    from_option = key in getattr(section.mapping, "origins", {})
+    base = Path(".") if from_option or section.file in (None, COMMAND_LINE) or str(section.file).startswith("<") \
+        else Path(section.file).parent
+    path = base / value
+    if not path.is_file():
+        raise section.error(key, f"material file {str(path)!r} not found (a path relative to "
+                                 f"{'the current folder' if base == Path('.') else 'the patch'})")
+    mapping = load_yaml_file(path)
+    if not isinstance(mapping, dict) or "material" not in mapping or set(mapping) - {"material"}:
+        raise PatchError("a material file holds one key, material: a mapping of density, youngs_modulus, "
+                         "poisson_ratio, tensile_strength, shear_modulus", file=str(path), line=1)
+    inner = Section(mapping, file=str(path))
+    material = material_from(inner) if isinstance(mapping["material"], dict) else None
+    if material is None:
+        raise inner.error("material", "must be a mapping of density, youngs_modulus, poisson_ratio, "
+                                      "tensile_strength, shear_modulus")
+    return replace(material, name=path.name, source=str(path))
 
 
 #: Fractions closer than this to 0 or 1 are the end (or centre) itself: a point 1e-45 of the length

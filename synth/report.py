@@ -229,6 +229,9 @@ EXTRA_TEXT_COLUMNS = {
     "nodal_lines_y": ("lines y", "{}"),
     "nodal_lines": ("nodal lines", "{}"),
     "timoshenko_shift_cents": ("shear cents", "{:+.1f}"),
+    "frequency_sd_hz": ("± Hz", "{:.2g}"),
+    "t60_sd_s": ("± T60 s", "{:.2g}"),
+    "fit_cents": ("fit cents", "{:+.2f}"),
 }
 
 
@@ -260,7 +263,7 @@ def _cell(value, key, fmt, units):
     return fmt.format(value)
 
 
-def table_to_text(table, *, max_rows=None, units=DEFAULT_UNITS, source=None, warnings=True):
+def table_to_text(table, *, max_rows=None, units=DEFAULT_UNITS, source=None, warnings=True, command="synth modes"):
     """The partial table as an aligned text table, with its parameters and warnings.
 
     Parameters
@@ -275,6 +278,8 @@ def table_to_text(table, *, max_rows=None, units=DEFAULT_UNITS, source=None, war
     warnings : bool
         Print the table's warnings under it (``synth render`` prints them once
         on stderr instead, naming the patch).
+    command : str
+        The command the hint after a cut table names (``synth fit`` for a recording).
 
     Returns
     -------
@@ -319,7 +324,7 @@ def table_to_text(table, *, max_rows=None, units=DEFAULT_UNITS, source=None, war
     lines.append(aligned(headers))
     lines += [aligned(row) for row in rows]
     if max_rows is not None and len(data["modes"]) > max_rows:
-        command = f"synth modes {source}" if source else "synth modes"
+        command = f"{command} {source}" if source else command
         lines.append(f"... {len(data['modes']) - max_rows} more modes ({command} lists them all)")
     if warnings:
         lines += [f"warning: {w}" for w in data["warnings"]]

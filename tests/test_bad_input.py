@@ -253,7 +253,7 @@ CASES = [
                  r"unknown material 'unobtainium' \(known: .*rosewood.*or give a mapping of density",
                  id="unknown-material"),
     pytest.param((sub("  material: music-wire", "  material: [steel]"),), "resonator.material", 4,
-                 r"must be a material name \(.*\) or a mapping of constants", id="material-wrong-type"),
+                 r"must be a material name \(.*\), a mapping of density, .*, or a material file \(\.yaml\), got", id="material-wrong-type"),
     pytest.param((sub("  material: music-wire", "  material:\n    density: 7850\n    youngs_modulus: 200 GPa\n"
                                                 "    poisson_ratio: 0.7"),),
                  "resonator.material.poisson_ratio", 7, r"must be <= 0\.5", id="custom-material-poisson"),
@@ -344,7 +344,7 @@ CASES = [
     pytest.param((drop("  length: 650 mm"),), "resonator.length", 2,
                  r"missing required key \(a length, e\.g\. '650 mm'; 1e-06 \.\. 1000 m\)$", id="missing-length-takes"),
     pytest.param((drop("  material: music-wire"),), "resonator.material", 2,
-                 r"missing required key \(a material name \(.*music-wire.*\) or a mapping of density, youngs_modulus",
+                 r"missing required key \(a material name \(.*music-wire.*\), a mapping of density, youngs_modulus.*material file",
                  id="missing-material-takes"),
     pytest.param((drop("name: test-string"),), "name", 1,
                  r"missing required key \(a plain name of letters, digits, '-' and '_'\)$", id="missing-name-takes"),
