@@ -44,10 +44,29 @@ single mode's displacement contribution at the excitation point before the
 pulse's roll-off (J = strength / max phi_e**2 / omega).  Either way the low
 modes' level does not depend on the mode count or the sample rate.
 
+A strike's contact time may come from a mallet (:class:`Mallet`): a mass m
+meeting the object at speed v through a contact spring ``F = K x**p`` (Hertz:
+p = 3/2 for a sphere on a flat; felt hammers p = 2.2-3.5 [3]_).  Against a
+rigid (much stiffer and heavier) surface, energy conservation ``m x'**2 / 2 +
+K x**(p+1) / (p+1) = m v**2 / 2`` gives the largest compression ``x_max =
+((p + 1) m v**2 / (2 K))**(1/(p+1))`` and the contact time (compression and
+release, no hysteresis)::
+
+    tau = 2 int_0^x_max dx / sqrt(v**2 - 2 K x**(p+1) / ((p+1) m))
+        = (2 x_max / v) B(1/(p+1), 1/2) / (p + 1)
+
+(substitute ``w = (x / x_max)**(p+1)``), so ``tau ~ v**((1-p)/(p+1))``:
+v**(-1/5) for Hertz, harder blows are shorter and brighter [4]_.
+
 References
 ----------
 .. [1] N. H. Fletcher and T. D. Rossing, *The Physics of Musical Instruments*,
    2nd ed., Springer (1998), sec. 2.7-2.8 (plucked and struck strings).
+.. [3] T. D. Rossing, ed., *The Science of String Instruments*, Springer
+   (2010), ch. 19 (piano): F = K x**p, p 2.2-3.5 for hammers taken from
+   pianos, 1.5-2.8 unused (Hall & Askenfelt 1988).
+.. [4] K. L. Johnson, *Contact Mechanics*, Cambridge University Press (1985),
+   sec. 11.4 (impact of spheres; from memory).
 .. [2] L. Meirovitch, *Fundamentals of Vibrations*, McGraw-Hill (2001), ch. 3
    and 7 (response of modes to arbitrary forces by the convolution integral;
    chapters from memory).
@@ -55,7 +74,7 @@ References
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 
 import numpy as np
 
@@ -69,6 +88,11 @@ __all__ = [
     "contact_spectrum",
     "onset_samples",
     "ONSET_BLOCK",
+    "Mallet",
+    "MALLETS",
+    "DEFAULT_STRIKE_SPEED",
+    "hertz_contact_time",
+    "hertz_sphere_stiffness",
 ]
 
 EXCITATIONS = ("pluck", "strike", "impulse")
@@ -98,6 +122,117 @@ def contact_spectrum(frequency_hz, contact_time):
     with np.errstate(divide="ignore", invalid="ignore"):
         h = np.abs(np.cos(0.5 * math.pi * x) / (1.0 - x**2))
     return np.where(np.isclose(x, 1.0, rtol=0, atol=1e-9), math.pi / 4.0, h)
+
+
+#: A mallet's striking speed at MIDI velocity 100 unless the patch says (m/s): a
+#: moderate stroke (common practice); piano hammers span 1-6 m/s from pianissimo to
+#: fortissimo (Russell & Rossing 1998, Acustica 84:967).
+DEFAULT_STRIKE_SPEED = 1.0
+
+
+def hertz_contact_time(*, mass, stiffness, exponent, speed):
+    """Contact time (s) of a mass striking a rigid surface through a spring ``F = K x**p``.
+
+    Parameters
+    ----------
+    mass : float > 0, kg
+    stiffness : float > 0, N/m**p
+        K of the contact law.
+    exponent : float >= 1
+        p (3/2 for Hertz contact of a sphere on a flat).
+    speed : float > 0, m/s
+        Speed at first contact.
+
+    Returns
+    -------
+    float, s
+        ``(2 x_max / v) B(1/(p+1), 1/2) / (p+1)``, ``x_max = ((p+1) m v**2 / (2K))**(1/(p+1))``
+        (module notes).
+
+    >>> round(hertz_contact_time(mass=1.0, stiffness=1.0, exponent=1.0, speed=1.0), 6)  # half a period of sqrt(K/m)
+    3.141593
+    """
+    p1 = exponent + 1.0
+    x_max = (p1 * mass * speed * speed / (2.0 * stiffness)) ** (1.0 / p1)
+    beta = math.exp(math.lgamma(1.0 / p1) + math.lgamma(0.5) - math.lgamma(1.0 / p1 + 0.5))
+    return 2.0 * x_max / speed * beta / p1
+
+
+def hertz_sphere_stiffness(*, youngs_modulus, poisson_ratio, radius):
+    """K (N/m**1.5) of an elastic sphere of `radius` (m) pressed on a rigid flat: ``(4/3) E/(1 - nu**2) sqrt(R)``.
+
+    Hertz 1882; Johnson, *Contact Mechanics* (1985), eq. 4.22 (from memory).
+    """
+    return 4.0 / 3.0 * youngs_modulus / (1.0 - poisson_ratio**2) * math.sqrt(radius)
+
+
+@dataclass(frozen=True)
+class Mallet:
+    """A mallet or hammer head: a mass striking through a contact spring ``F = K x**p``.
+
+    Attributes
+    ----------
+    mass : float > 0, kg
+        The head and the share of the stick that moves with it.
+    stiffness : float > 0, N/m**p
+        K of the contact law.
+    exponent : float >= 1
+        p: 3/2 for Hertz contact of an elastic sphere; 2.2-3.5 for felt.
+    speed : float > 0, m/s
+        Striking speed at MIDI velocity 100 (:data:`DEFAULT_STRIKE_SPEED`).
+    name : str
+        A name of :data:`MALLETS`, or "custom".
+    """
+
+    mass: float
+    stiffness: float
+    exponent: float = 1.5
+    speed: float = DEFAULT_STRIKE_SPEED
+    name: str = "custom"
+
+    @property
+    def contact_time(self):
+        """Contact time (s) on a rigid surface at `speed` (:func:`hertz_contact_time`)."""
+        return hertz_contact_time(mass=self.mass, stiffness=self.stiffness, exponent=self.exponent, speed=self.speed)
+
+    def at_speed(self, speed):
+        """The same mallet striking at `speed` (m/s)."""
+        return replace(self, speed=float(speed))
+
+    def describe(self):
+        """One line for a report: ``felt, 2.97 g, K 4.5e+09 N/m^2.5, p 2.5, at 1 m/s``."""
+        return (f"{self.name}, {self.mass * 1e3:.3g} g, K {self.stiffness:.3g} N/m^{self.exponent:g}, "
+                f"p {self.exponent:g}, at {self.speed:.3g} m/s")
+
+
+_HEAD_RADIUS = 0.0125  # m: heads of 2-2.8 cm diameter (Vienna Symphonic Library, xylophone mallets)
+_HEAD_MASS = 0.025  # kg: head plus the moving share of a rattan or birch stick (common practice, from memory)
+
+#: Named mallets (``excitation.mallet: felt``), striking a rigid surface at 1 m/s.  Elastic
+#: heads use Hertz's sphere on a flat (:func:`hertz_sphere_stiffness`) with the head
+#: material's modulus; felt and yarn harden faster (p = 2.5).  Contact times at 1 m/s:
+#: rubber 1.7 ms, yarn 3.1 ms, felt 1.1 ms, wood 0.30 ms, plastic 0.26 ms, brass 0.065 ms.
+MALLETS = {
+    # medium rubber, E 20 MPa, nu 0.5 (rubber 1-100 MPa; from memory)
+    "rubber": Mallet(_HEAD_MASS, hertz_sphere_stiffness(youngs_modulus=20e6, poisson_ratio=0.5, radius=_HEAD_RADIUS),
+                     1.5, name="rubber"),
+    # yarn over a rubber core: hardens like felt, p = 2.5 (Hall & Askenfelt's felt range, taken for yarn:
+    # common practice); K 1e9 N/m^2.5 puts its contact near 3 ms at 1 m/s (no measured yarn constant found)
+    "yarn": Mallet(0.030, 1.0e9, 2.5, name="yarn"),
+    # piano hammer felt, middle C: 2.97 g, K 4.5e9 N/m^2.5, p 2.5 (Chaigne & Askenfelt 1994, JASA 95:1112,
+    # Table I; from memory), p inside the 2.2-3.5 of Hall & Askenfelt 1988 (via Rossing 2010, ch. 19)
+    "felt": Mallet(2.97e-3, 4.5e9, 2.5, name="felt"),
+    # hard maple head loaded across the grain: E_R = 0.132 E_L = 1.66 GPa (USDA Wood Handbook 2010,
+    # Table 5-3a ratios), nu 0.42
+    "wood": Mallet(_HEAD_MASS, hertz_sphere_stiffness(youngs_modulus=1.66e9, poisson_ratio=0.42, radius=_HEAD_RADIUS),
+                   1.5, name="wood"),
+    # polycarbonate (Lexan) head, E 2.4 GPa, nu 0.37 (from memory)
+    "plastic": Mallet(_HEAD_MASS, hertz_sphere_stiffness(youngs_modulus=2.4e9, poisson_ratio=0.37, radius=_HEAD_RADIUS),
+                      1.5, name="plastic"),
+    # brass head of 20 mm diameter, 30 g: E 110 GPa, nu 0.33 (Olin C26000 data sheet, as synth.materials)
+    "brass": Mallet(0.030, hertz_sphere_stiffness(youngs_modulus=110e9, poisson_ratio=0.33, radius=0.010),
+                    1.5, name="brass"),
+}
 
 
 def _e(z, t):

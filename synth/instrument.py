@@ -354,7 +354,7 @@ class Instrument:
 
         solution = solve_modes(patch, cache=self.cache)
         own = float(solution.frequency_hz[0])
-        modes = coupling.apply([own], [LN1000 / patch.damping.t60], [1],
+        modes = coupling.apply([own], [LN1000 / patch.damping.fundamental_t60(own)], [1],
                                impedance=string_impedance(solution.parameters))
         weight = np.abs(modes.weight)
         return float(np.sum(weight * modes.frequency_hz) / np.sum(weight)) / own

@@ -11,7 +11,9 @@ from dataclasses import dataclass, field, replace
 from pathlib import Path
 
 from .errors import COMMAND_LINE, PatchError
-from .excitation import DEFAULT_RELEASE_TIME_S, EXCITATIONS, MEASURES, Pulse, check_measure
+from .damping import loss_factor_t60, rayleigh_t60, two_point_t60
+from .excitation import DEFAULT_RELEASE_TIME_S, DEFAULT_STRIKE_SPEED, EXCITATIONS, MALLETS, MEASURES, Mallet, Pulse, \
+    check_measure
 from .materials import MATERIALS, Material
 from .resonators import (
     RESONATOR_TYPES,
@@ -124,6 +126,13 @@ class Excitation:
         How long a pluck's release takes (0..100 ms): the holding force
         falls as a raised cosine.  Default
         :data:`synth.excitation.DEFAULT_RELEASE_TIME_S` (0.2 ms).
+    mallet : Mallet or None
+        What strikes (:class:`synth.excitation.Mallet`): where given,
+        `contact_time` is its Hertz contact time at its speed, and a MIDI
+        velocity scales that speed.  None: `contact_time` as written.
+    across : float in [-1, 1]
+        A bar's strike across its width: fraction of the half-width from the
+        centre line (0: on it; off it, the torsional modes sound).
     """
 
     kind: str = "pluck"
@@ -131,6 +140,8 @@ class Excitation:
     contact_time: float = 1e-3  # s
     strength: float = 1.0
     release_time: float = DEFAULT_RELEASE_TIME_S  # s
+    mallet: Mallet | None = None
+    across: float = 0.0  # fraction of a bar's half-width from its centre line
 
     @property
     def pulse(self):
@@ -151,10 +162,13 @@ class Pickup:
     measures : {"displacement", "velocity", "acceleration"}
         What the pickup reads.  Default velocity (displacement for an
         impulse, whose velocity would start with a step).
+    across : float in [-1, 1]
+        A bar's pickup across its width, as :attr:`Excitation.across`.
     """
 
     position: Point | None = None  # None: every mode weighted 1
     measures: str = "velocity"
+    across: float = 0.0
 
 
 @dataclass(frozen=True)
@@ -173,12 +187,59 @@ class Damping:
         T60 after a MIDI note-off (at most 3600 s), and the ending of a file
         whose fixed duration would cut the sound; None: the object has no
         dampers (it rings on after key-up).  Default 0.15 s.
+    loss_factor : float > 0 or None, dimensionless
+        A constant loss factor eta instead of the two-point law: ``T60 =
+        3 ln(10) / (pi eta f)`` (:func:`synth.damping.loss_factor_t60`).
+    loss_factor_source : str or None
+        The material whose tabulated eta this is (``loss_factor: material``);
+        None when the patch gave the number.
+    rayleigh : (float, float) or None, (1/s, s)
+        ``(alpha, beta)`` of Rayleigh damping instead of the two-point law:
+        ``sigma = (alpha + beta omega**2) / 2`` (:func:`synth.damping.rayleigh_t60`).
     """
 
     t60: float = 3.0  # s, at the fundamental
     t60_high: float | None = None  # s, at high_frequency
     high_frequency: float = 4000.0  # Hz
     release_t60: float | None = 0.15  # s, after note-off; None: no dampers
+    loss_factor: float | None = None  # eta; None: not this law
+    loss_factor_source: str | None = None  # material name, when taken from the material table
+    rayleigh: tuple | None = None  # (alpha 1/s, beta s); None: not this law
+
+    @property
+    def law(self):
+        """Which damping law applies: "two-point", "loss-factor" or "rayleigh"."""
+        if self.loss_factor is not None:
+            return "loss-factor"
+        if self.rayleigh is not None:
+            return "rayleigh"
+        return "two-point"
+
+    def mode_t60(self, frequency_hz, *, fundamental_hz):
+        """T60 (s) of modes at `frequency_hz` (Hz) under this section's law (`fundamental_hz` anchors the two-point law)."""
+        if self.law == "loss-factor":
+            return loss_factor_t60(frequency_hz, loss_factor=self.loss_factor)
+        if self.law == "rayleigh":
+            alpha, beta = self.rayleigh
+            return rayleigh_t60(frequency_hz, alpha=alpha, beta=beta)
+        return two_point_t60(frequency_hz, t60=self.t60, fundamental_hz=fundamental_hz, t60_high=self.t60_high,
+                             high_frequency=self.high_frequency)
+
+    def fundamental_t60(self, fundamental_hz):
+        """T60 (s) at the fundamental: `t60` itself under the two-point law."""
+        if self.law == "two-point":
+            return self.t60
+        return float(self.mode_t60([fundamental_hz], fundamental_hz=fundamental_hz)[0])
+
+    def describe(self):
+        """The law in words (for a report), or None for the two-point law (the T60 column says it)."""
+        if self.law == "loss-factor":
+            where = f" ({self.loss_factor_source}'s tabulated value)" if self.loss_factor_source else ""
+            return f"constant loss factor eta = {self.loss_factor:.3g}{where}: T60 = 3 ln 10 / (pi eta f)"
+        if self.law == "rayleigh":
+            return (f"Rayleigh, alpha = {self.rayleigh[0]:.4g} 1/s, beta = {self.rayleigh[1]:.4g} s: "
+                    "sigma = (alpha + beta omega^2) / 2")
+        return None
 
 
 @dataclass(frozen=True)
@@ -321,11 +382,25 @@ _EXCITATION_FIELDS = {
     "contact_time": Field("time", default=1e-3, low=0.0, high=1.0),
     "strength": Field("number", default=1.0, positive=True, high=1e6),
     "release_time": Field("time", default=DEFAULT_RELEASE_TIME_S, low=0.0, high=0.1),
+    "mallet": Field("any", takes=f"a mallet name ({', '.join(MALLETS)}) or a mapping of material, mass, "
+                                 "stiffness, exponent, speed"),
+    "across": Field("number", default=0.0, low=-1.0, high=1.0),  # bars: fraction of the half-width off centre
+}
+
+#: Keys of ``excitation.mallet`` given as a mapping (bare SI numbers: kg, N/m^p, m/s).
+_MALLET_FIELDS = {
+    "material": Field("choice", choices=tuple(MALLETS)),
+    "mass": Field("number", positive=True, high=100.0, takes="a mass in kg (a bare number), e.g. 0.025"),
+    "stiffness": Field("number", positive=True, high=1e15, takes="K of F = K x^p in N/m^p (a bare number), e.g. 4e8"),
+    "exponent": Field("number", low=1.0, high=5.0, takes="p of F = K x^p, 1..5 (Hertz: 1.5)"),
+    "speed": Field("number", positive=True, high=50.0,
+                   takes="the striking speed at MIDI velocity 100 in m/s (a bare number), e.g. 1.5"),
 }
 
 _PICKUP_FIELDS = {
     "position": Field("any"),
     "measures": Field("choice", choices=MEASURES),
+    "across": Field("number", default=0.0, low=-1.0, high=1.0),
 }
 
 _DAMPING_FIELDS = {
@@ -333,6 +408,21 @@ _DAMPING_FIELDS = {
     "t60_high": Field("time", positive=True, high=3600.0),
     "high_frequency": Field("frequency", default=4000.0, positive=True),
     "release_t60": Field("time", default=0.15, positive=True, high=3600.0, nullable=True),
+    "loss_factor": Field("number", positive=True, high=1.0, keywords=("material",),
+                         takes="a loss factor eta, 0 < eta <= 1, or material (the resonator material's tabulated eta)"),
+    "rayleigh": Field("any", takes="a mapping {alpha: 1/s, beta: s} (bare numbers)"),
+}
+
+#: The keys of each damping law; a section gives the keys of one law only.
+_DAMPING_LAWS = {
+    "two-point": ("t60", "t60_high", "high_frequency"),
+    "loss-factor": ("loss_factor",),
+    "rayleigh": ("rayleigh",),
+}
+
+_RAYLEIGH_FIELDS = {
+    "alpha": Field("number", default=0.0, low=0.0, high=1e6, takes="alpha in 1/s (a bare number >= 0)"),
+    "beta": Field("number", default=0.0, low=0.0, high=1.0, takes="beta in s (a bare number >= 0)"),
 }
 
 _RENDER_FIELDS = {
@@ -505,12 +595,15 @@ def patch_from_mapping(mapping, *, file="<patch>", overrides=None):
     sections = _sections(top, file)
     exc = sections["excitation"]
     exc_values = read_section(exc, _EXCITATION_FIELDS)
+    mallet = _mallet(exc, exc_values["type"])
     excitation = Excitation(
         kind=exc_values["type"],
         position=_position(exc, "position", style, _DEFAULT_POSITIONS[style]),
-        contact_time=exc_values["contact_time"],
+        contact_time=exc_values["contact_time"] if mallet is None else mallet.contact_time,
         strength=exc_values["strength"],
         release_time=exc_values["release_time"],
+        mallet=mallet,
+        across=exc_values["across"],
     )
     pick = sections["pickup"]
     pick_values = read_section(pick, _PICKUP_FIELDS)
@@ -518,10 +611,10 @@ def patch_from_mapping(mapping, *, file="<patch>", overrides=None):
     problem = check_measure(excitation.kind, measures)
     if problem is not None:
         raise pick.error("measures", problem)
-    pickup = Pickup(position=_position(pick, "position", style, None), measures=measures)
-    damp_values = read_section(sections["damping"], _DAMPING_FIELDS)
-    if damp_values["t60_high"] is not None and damp_values["t60_high"] > damp_values["t60"]:
-        raise sections["damping"].error("t60_high", f"must not exceed t60 ({damp_values['t60']:g} s): higher partials decay faster")
+    pickup = Pickup(position=_position(pick, "position", style, None), measures=measures,
+                    across=pick_values["across"])
+    spec = _torsion_choice(spec, exc, excitation.across, pick, pickup)
+    damp_values = _damping_values(sections["damping"], top)
     render_section = sections["render"]
     render_values = read_section(render_section, _RENDER_FIELDS)
     render = RenderSettings(**render_values)
@@ -539,6 +632,98 @@ def patch_from_mapping(mapping, *, file="<patch>", overrides=None):
     )
     _check_size(patch, overrides or {})
     return patch
+
+
+def _mallet(section, kind):
+    """The :class:`Mallet` of ``excitation.mallet`` (None when not given); its errors name the key."""
+    value = section.mapping.get("mallet")
+    if value is None:
+        return None
+    if kind != "strike":
+        raise section.error("mallet", f"a mallet strikes: it needs type: strike (this excitation is a {kind})")
+    if "contact_time" in section.mapping:
+        raise section.error("mallet", "give mallet or contact_time, not both: a mallet sets the contact time")
+    if isinstance(value, str):
+        if value not in MALLETS:
+            close = difflib.get_close_matches(value, list(MALLETS), n=1)
+            hint = f"; did you mean {close[0]!r}?" if close else ""
+            raise section.error("mallet", f"unknown mallet {short_repr(value)}{hint} (known: {', '.join(MALLETS)}; "
+                                          "or a mapping of mass, stiffness, exponent, speed)")
+        mallet = MALLETS[value]
+    elif isinstance(value, dict):
+        inner = section.child("mallet")
+        values = read_section(inner, _MALLET_FIELDS)
+        base = MALLETS.get(values["material"])
+        if base is None:
+            for key in ("mass", "stiffness"):
+                if values[key] is None:  # a mallet without a named material needs both
+                    raise inner.missing(key, _MALLET_FIELDS[key])
+            base = Mallet(values["mass"], values["stiffness"], 1.5)
+        mallet = Mallet(
+            mass=base.mass if values["mass"] is None else values["mass"],
+            stiffness=base.stiffness if values["stiffness"] is None else values["stiffness"],
+            exponent=base.exponent if values["exponent"] is None else values["exponent"],
+            speed=DEFAULT_STRIKE_SPEED if values["speed"] is None else values["speed"],
+            name=base.name,
+        )
+    else:
+        raise section.error("mallet", f"must be {_EXCITATION_FIELDS['mallet'].takes}, got {short_repr(value)}")
+    tau = mallet.contact_time
+    if not 0.0 < tau <= 1.0:
+        raise section.error("mallet", f"gives a contact time of {tau:.3g} s; it must be 0 .. 1 s (a lighter or "
+                                      "stiffer mallet, or a faster stroke, is shorter)")
+    return mallet
+
+
+def _damping_values(section, top):
+    """The :class:`Damping` keyword values of a ``damping:`` section: one law, checked."""
+    values = read_section(section, _DAMPING_FIELDS)
+    given = [law for law, keys in _DAMPING_LAWS.items() if any(k in section.mapping for k in keys)]
+    if len(given) > 1:
+        keys = [k for law in given for k in _DAMPING_LAWS[law] if k in section.mapping]
+        raise section.error(keys[-1], f"damping takes one law, but this section gives {' and '.join(keys)}: keep "
+                                      "t60/t60_high/high_frequency (two-point), loss_factor or rayleigh")
+    if values["t60_high"] is not None and values["t60_high"] > values["t60"]:
+        raise section.error("t60_high", f"must not exceed t60 ({values['t60']:g} s): higher partials decay faster")
+    if values["rayleigh"] is not None:
+        inner = section.child("rayleigh", _RAYLEIGH_FIELDS)
+        coefficients = read_section(inner, _RAYLEIGH_FIELDS)
+        if coefficients["alpha"] == 0.0 and coefficients["beta"] == 0.0:
+            raise section.error("rayleigh", "alpha and beta are both 0 (no damping): give alpha > 0 (1/s) or beta > 0 (s)")
+        values["rayleigh"] = (coefficients["alpha"], coefficients["beta"])
+    if values["loss_factor"] == "material":
+        values["loss_factor"], values["loss_factor_source"] = _material_loss_factor(section, top)
+    return values
+
+
+def _material_loss_factor(section, top):
+    """(eta, material name) of the resonator's material, for ``loss_factor: material``."""
+    name = top.mapping.get("resonator", {}).get("material") if isinstance(top.mapping.get("resonator"), dict) else None
+    material = MATERIALS.get(name) if isinstance(name, str) else None
+    if material is None or material.loss_factor is None:
+        what = f"the resonator's material {short_repr(name)} has" if name is not None else "the resonator has no material, so"
+        known = ", ".join(sorted(m for m, v in MATERIALS.items() if v.loss_factor is not None))
+        raise section.error("loss_factor", f"{what} no tabulated loss factor: give a number (0 < eta <= 1), "
+                                           f"or use a named material ({known})")
+    return material.loss_factor, material.name
+
+
+def _torsion_choice(spec, exc, exc_across, pick, pickup):
+    """The bar spec with ``resonator.torsion`` decided from the ``across`` keys; errors where one cannot apply."""
+    off_centre = [(section, value) for section, value in ((exc, exc_across), (pick, pickup.across)) if value != 0.0]
+    if spec.TYPE != "bar":
+        for section, _ in off_centre:
+            raise section.error("across", f"only a bar takes across (a fraction -1..1 of its half-width from the "
+                                          f"centre line); leave it out for a {spec.TYPE}")
+        return spec
+    if pickup.across != 0.0 and pickup.position is None:
+        raise pick.error("across", "needs pickup.position (without a position every mode is heard with weight 1)")
+    if spec.torsion == "auto":
+        return replace(spec, torsion=bool(off_centre))
+    if spec.torsion is False and off_centre:
+        raise off_centre[0][0].error("across", "off the centre line only torsional modes respond, and "
+                                               "resonator.torsion is false: set it to true or auto, or leave across out")
+    return spec
 
 
 def apply_overrides(mapping, overrides, file="<patch>"):

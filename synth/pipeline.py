@@ -12,7 +12,7 @@ from dataclasses import dataclass, replace
 
 import numpy as np
 
-from .damping import LN1000, two_point_t60
+from .damping import LN1000
 from .excitation import MEASURES, drive_coefficients, onset_samples
 from .modes import NODE_TOLERANCE, PartialTable, frozen_array
 from .patch import MAX_MODES, MAX_SAMPLE_RATE
@@ -35,12 +35,19 @@ LIMIT_COUNT = "render.max_modes"
 LIMIT_MODEL = "every mode the model has"
 
 
-def _coordinate(point):
+def _coordinate(point, across=0.0):
+    """A point as the resonator's shapes take it; a bar's point off its centre line is (fraction, across)."""
     if point is None:
         return None
     if point.style == "fraction":
-        return point.values[0]
+        return point.values[0] if across == 0.0 else (point.values[0], across)
     return point.values
+
+
+def _points(patch):
+    """(excitation, pickup) coordinates of `patch`."""
+    return (_coordinate(patch.excitation.position, patch.excitation.across),
+            _coordinate(patch.pickup.position, patch.pickup.across))
 
 
 def mode_set(patch, *, cache=None):
@@ -89,7 +96,7 @@ def mode_set(patch, *, cache=None):
         solution = solve_modes(patch, cache=cache)
     except UnreachablePitch as error:
         raise patch.error("resonator.pitch", str(error)) from None
-    return solution.place(_coordinate(patch.excitation.position), _coordinate(patch.pickup.position))
+    return solution.place(*_points(patch))
 
 
 def solve_modes(patch, *, cache=None, n_modes=None, at_least=1):
@@ -153,6 +160,7 @@ def _moved_shape(spec, cache):
         return midi_to_note(round(midi)) + (f" {cents:+.0f} cents" if abs(cents) >= 1 else "")
 
     cache = DEFAULT_CACHE if cache is None else cache
+    spec = replace(spec, torsion=False)  # the tuned bending partials only
     original = cache.retune(replace(spec, shaped_for_hz=None), shaped_for)
     before = cache.solve(original, 3).frequency_hz[:3]
     after = cache.solve(spec, 3).frequency_hz[:3]
@@ -214,7 +222,8 @@ def unweighted_partials(patch, *, modes=None, detune_cents=0.0, cache=None):
     keep = modes.frequency_hz < nyquist  # those at or above are left out: information, not a warning
     if not np.any(keep):
         raise _all_above_nyquist(patch, float(modes.frequency_hz[0]), nyquist)
-    fundamental = float(modes.frequency_hz[0])
+    # a bar with torsional modes keeps B1 as its fundamental (T1 may lie below it)
+    fundamental = float(modes.parameters.get("bending_fundamental_hz", modes.frequency_hz[0]))
     kept = modes.select(keep)
     damping = patch.damping
     if damping.t60_high is not None and damping.high_frequency <= fundamental:
@@ -222,19 +231,12 @@ def unweighted_partials(patch, *, modes=None, detune_cents=0.0, cache=None):
             "damping.high_frequency",
             f"must be above the fundamental ({fundamental:.2f} Hz) to set how high partials decay",
         )
-    t60 = two_point_t60(
-        kept.frequency_hz,
-        t60=damping.t60,
-        fundamental_hz=fundamental,
-        t60_high=damping.t60_high,
-        high_frequency=damping.high_frequency,
-    )
+    t60 = damping.mode_t60(kept.frequency_hz, fundamental_hz=fundamental)  # the section's law (synth.damping)
     t60 = _given_t60(kept, t60)
     limits, following = _mode_limits(patch, modes, keep, detune_cents, cache)
     if following is not None:
-        following = (following, _given_t60(following, two_point_t60(
-            following.frequency_hz, t60=damping.t60, fundamental_hz=fundamental, t60_high=damping.t60_high,
-            high_frequency=damping.high_frequency)))
+        following = (following, _given_t60(following, damping.mode_t60(following.frequency_hz,
+                                                                        fundamental_hz=fundamental)))
     if patch.coupling is None:
         return Unweighted(modes, keep, kept, t60, fundamental, tuple(warnings), limits=limits, following=following)
     return replace(_coupled(patch, modes, keep, kept, t60, fundamental, warnings), limits=limits, following=following)
@@ -271,7 +273,7 @@ def _mode_limits(patch, modes, keep, detune_cents, cache):
     while True:
         asked = max_modes + look
         following = solve_modes(patch, cache=cache, n_modes=asked)
-        following = following.place(_coordinate(patch.excitation.position), _coordinate(patch.pickup.position))
+        following = following.place(*_points(patch))
         following = following.detuned(detune_cents)
         frequency = following.frequency_hz
         if len(frequency) <= max_modes:
@@ -466,8 +468,13 @@ def _excitation_parameters(patch):
     out = {"excitation": excitation.kind, "pickup_measures": patch.pickup.measures}
     if excitation.kind == "strike":
         out["contact_time_s"] = excitation.contact_time
+        if excitation.mallet is not None:
+            out["mallet"] = excitation.mallet.describe()
     elif excitation.kind == "pluck":
         out["release_time_s"] = excitation.release_time
+    law = patch.damping.describe()
+    if law is not None:  # the two-point law is the default the T60 column shows
+        out["damping_law"] = law
     return out
 
 

@@ -229,6 +229,8 @@ EXTRA_TEXT_COLUMNS = {
     "nodal_lines_y": ("lines y", "{}"),
     "nodal_lines": ("nodal lines", "{}"),
     "timoshenko_shift_cents": ("shear cents", "{:+.1f}"),
+    "cents_from_bending": ("from bending cents", "{:+.1f}"),
+    "nearest_bending": ("nearest bending", "{}"),
     "frequency_sd_hz": ("± Hz", "{:.2g}"),
     "t60_sd_s": ("± T60 s", "{:.2g}"),
     "fit_cents": ("fit cents", "{:+.2f}"),

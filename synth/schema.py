@@ -260,7 +260,8 @@ def convert(field, value):
         return value
     if kind == "bool":
         if not isinstance(value, bool):
-            raise ValueError(f"must be true or false, got {short_repr(value)}")
+            words = "true or false" + "".join(f" or {k}" for k in field.keywords)
+            raise ValueError(f"must be {words}, got {short_repr(value)}")
         return value
     if kind == "str":
         if not isinstance(value, str):

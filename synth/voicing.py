@@ -14,6 +14,10 @@ A MIDI velocity v (1..127) is read as proportional to the striking speed, so
   spring with force law F = K x^p the contact time of a mass hitting it scales
   as v^(-(p - 1) / (p + 1)); felt hammers have p = 2.2-3.5 (Hall & Askenfelt
   1988, via Rossing), and p = 2.5 gives the exponent 3/7 = 0.43 used here.
+* a strike with a mallet (``excitation.mallet``) strikes at ``speed * v / 100``
+  and its contact time is the mallet's own Hertz contact time at that speed
+  (:func:`synth.excitation.hertz_contact_time`: v^(-1/5) for p = 3/2, v^(-3/7)
+  for felt's p = 2.5), so the brightness follows the mallet's contact law.
 """
 from __future__ import annotations
 
@@ -87,9 +91,14 @@ def voice_patch(patch, *, midi_note=None, pitch_hz=None, velocity=REFERENCE_VELO
         patch = retune(patch, pitch_hz * 2.0 ** (detune_cents / 1200.0), cache=cache)
     if velocity == REFERENCE_VELOCITY:  # as written, exactly (strength * 100 / 100 may round)
         return patch
+    mallet = patch.excitation.mallet
+    if mallet is not None:  # the mallet strikes faster or slower: its own contact law sets the time
+        mallet = mallet.at_speed(mallet.speed * float(velocity) / REFERENCE_VELOCITY)
     excitation = replace(
         patch.excitation,
         strength=velocity_strength(patch.excitation.strength, velocity),
-        contact_time=velocity_contact_time(patch.excitation.contact_time, velocity),
+        contact_time=velocity_contact_time(patch.excitation.contact_time, velocity) if mallet is None
+        else mallet.contact_time,
+        mallet=mallet,
     )
     return replace(patch, excitation=excitation)

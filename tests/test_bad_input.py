@@ -350,7 +350,7 @@ CASES = [
                  r"missing required key \(a plain name of letters, digits, '-' and '_'\)$", id="missing-name-takes"),
     pytest.param((sub("excitation:", "excitation: 5"), drop("  type: pluck"), drop("  position: 0.12"),
                   drop("  contact_time: 1.5 ms"), drop("  strength: 1.0")), "excitation", 9,
-                 r"must be a mapping of keys, got int 5 \(allowed keys: contact_time, position, release_time, strength, type\)$",
+                 r"must be a mapping of keys, got int 5 \(allowed keys: across, contact_time, mallet, position, release_time, strength, type\)$",
                  id="section-not-mapping-lists-keys"),
     # keys YAML reads as something other than a name
     pytest.param((sub("  ends: pinned", "  ends: pinned\n  ~: x"),), None, 9,

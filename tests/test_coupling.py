@@ -45,6 +45,7 @@ from synth.coupling import (
 from .analysis import envelope_db, phase_frequency, read_wav
 from .cli_checks import error_line
 from .cli_checks import run_cli as run
+from .test_air_column import _cramer
 
 LN1000 = math.log(1000.0)
 CENT = 2.0 ** (1.0 / 1200.0) - 1.0
@@ -143,7 +144,7 @@ class TestTube:
         np.testing.assert_allclose(got.weight, (v[0] + level * v[1]) * start, rtol=1e-9)
 
     def test_tube_length_and_decay(self):
-        c = 331.3 * math.sqrt(1 + 20 / 273.15)  # the air column's speed of sound at 20 degC
+        c = _cramer(20.0, 50.0)  # the air column's speed of sound at 20 degC, 50 % RH (Cramer 1993)
         f, a = 262.0, 0.03
         assert tube_length(f, a) == pytest.approx(c / (4 * f) - 0.6133 * a, rel=1e-12)
         ka = 2 * math.pi * f * a / c
@@ -252,7 +253,7 @@ def test_a_tubed_bar_decays_as_the_coupled_pair_predicts(capsys, tmp_path):
     table = _json(capsys, "modes", tmp_path / "tubed.yaml", "--pitch", "C4", "--json")
     p = table["parameters"]
     fb = p["tube_frequency_hz"]  # the tube is tuned to the bar's fundamental, so this is the bar's own
-    c = 331.3 * math.sqrt(1 + 20 / 273.15)
+    c = _cramer(20.0, 50.0)  # Cramer 1993 at 20 degC, 50 % RH (tests/test_air_column.py)
     ka = 2 * math.pi * fb * 0.03 / c
     tube_rate = ka**2 * fb + 2.964e-5 * math.sqrt(fb) / 0.03 * c
     assert p["tube_length_m"] == pytest.approx(c / (4 * fb) - 0.6133 * 0.03, rel=1e-12)

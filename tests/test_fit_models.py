@@ -30,6 +30,7 @@ from synth.resonators import resonator_module
 LN1000 = math.log(1000.0)
 # Free-free (= clamped-clamped) beam roots beta_n L: Thomson, Theory of Vibration with
 # Applications, App. D; Blevins 1979 table 8-1 (8 digits as quoted in the brief).
+CENT = 2.0 ** (1.0 / 1200.0) - 1.0  # one cent as a relative frequency step
 BEAM_ROOTS = np.array([4.7300407, 7.8532046, 10.9956078, 14.1371655])
 # Free circular plate, nu = 0.33, lambda^2 = omega a^2 sqrt(rho h / D): REFERENCES.md sec. 5 [C]
 # (computed independently; the same literals as tests/test_plate.py).
@@ -141,7 +142,10 @@ def test_string_geometry_round_trip_through_synth(ends):
                            youngs_modulus=wire.youngs_modulus, ends=ends)
     # By hand: mu = rho pi d^2 / 4, f0 = sqrt(T / mu) / (2 L), B = pi^3 E d^4 / (64 T L^2).
     mu = wire.density * math.pi * d**2 / 4
-    assert math.sqrt(t / mu) / (2 * length) == pytest.approx(f0, rel=1e-12)
+    # Clamped: Fletcher's factor set up the comb, string_geometry inverts the exact law; they agree
+    # at partial 1 to 0.005 cent for B = 4e-4 (tests/test_string_exact.py holds Fletcher's error).
+    close = 1e-12 if ends == "pinned" else 0.01 * CENT
+    assert math.sqrt(t / mu) / (2 * length) == pytest.approx(f0, rel=close)
     assert math.pi**3 * wire.youngs_modulus * d**4 / (64 * t * length**2) == pytest.approx(b, rel=1e-12)
     patch = synth.patch_from_text(f"""
 name: fitted-string
@@ -150,7 +154,10 @@ render: {{sample_rate: 48000, max_modes: 20}}
 """)
     modes = synth.mode_set(patch)
     n = np.arange(1, 21)
-    np.testing.assert_allclose(modes.frequency_hz, stiff_comb(n, fitted_f0, b), rtol=1e-9)
+    # Pinned: the comb exactly.  Clamped: the exact law, which Fletcher's comb approximates to
+    # 0.25 cent at B = 4e-4 for n <= 20 (measured -0.22 cent at n = 19).
+    np.testing.assert_allclose(modes.frequency_hz, stiff_comb(n, fitted_f0, b),
+                               rtol=1e-9 if ends == "pinned" else 0.25 * CENT)
     assert modes.parameters["inharmonicity_b"] == pytest.approx(b, rel=1e-9)
 
 

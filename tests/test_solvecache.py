@@ -56,6 +56,13 @@ def _same_arrays(a, b):
 #: Demo patches whose partials the exact Timoshenko frequency equation moves (see the module notes).
 EXACT_TIMOSHENKO = {"bar-aluminium-chime-a4.yaml", "bar-rosewood-blank-c4.yaml", "bar-steel-rod-clamped-tine.yaml"}
 CENT = 2.0 ** (1.0 / 1200.0) - 1.0  # one cent as a relative frequency step
+#: Demo pipes of a fixed length, which Cramer's speed of sound in humid air (issue 16; 50 % RH
+#: by default) moves: c at 15 degC rises from 340.275 to 340.876 m/s, +3.05 cents for every mode.
+CRAMER_SPEED = {"air-column-open-conduit.yaml"}
+#: Clamped demo strings: the exact clamped frequency determinant replaces Fletcher's small-B factor
+#: (issue 16; tests/test_string_exact.py holds it against a Chebyshev solver): the pitch stays, the
+#: upper partials move (bass patch: -0.63 cent at n = 16, -29.6 cents at n = 101).
+EXACT_CLAMPED_STRING = {"string-bass-steel-a1.yaml"}
 
 
 @pytest.mark.parametrize("case", GOLDEN, ids=_golden_id)
@@ -65,6 +72,19 @@ def test_golden_modes_are_kept(case):
     assert len(new["labels"]) >= count  # auto may add modes above the golden ones, never drop one
     new = {key: value[:count] if isinstance(value, list) else value for key, value in new.items()}
     assert new["labels"] == case["labels"]
+    if case["patch"] in CRAMER_SPEED:
+        ratio = np.array(new["frequency_hz"]) / np.array(case["frequency_hz"])
+        np.testing.assert_allclose(ratio, ratio[0], rtol=1e-12)  # every mode moves with c
+        assert 2.9 < 1200.0 * np.log2(ratio[0]) < 3.2  # 15 degC: +0.75 cent real gas, +2.30 cents 50 % RH
+        np.testing.assert_allclose(new["t60_s"], case["t60_s"], rtol=1e-2)  # sigma(f) follows f smoothly
+        return
+    if case["patch"] in EXACT_CLAMPED_STRING:
+        old, now = np.array(case["frequency_hz"]), np.array(new["frequency_hz"])
+        cents = 1200.0 * np.log2(now / old)
+        assert abs(cents[0]) < 1e-6  # the lowest partial is the pitch (as written, or a MIDI note)
+        assert np.max(np.abs(cents)) < 31.0  # the issue: 30 cents at n = 101
+        np.testing.assert_allclose(new["t60_s"], case["t60_s"], rtol=0.05)  # sigma(f) follows f smoothly
+        return
     if case["patch"] in EXACT_TIMOSHENKO:
         old, now = np.array(case["frequency_hz"]), np.array(new["frequency_hz"])
         cents = np.abs(1200.0 * np.log2(now / old))

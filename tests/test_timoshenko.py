@@ -406,3 +406,67 @@ def test_bad_input():
         uniform_frequencies("free-free", 0, **kw)
     with pytest.raises(ValueError):
         uniform_frequencies("free-free", 3, **dict(kw, length=-1.0))
+
+
+# --------------------------------------------------------------------------
+# Mode shapes (issue 16): closed forms checked here; the fine-FE checks are in test_timoshenko_shapes.py.
+
+
+def test_mode_shapes_pinned_closed_form_both_spectra():
+    # Pinned-pinned: w = c sin(n pi x / L), psi = c P cos(n pi x / L), P = (k^2 - rho w^2 / kG) / k (from
+    # psi' = w'' + rho w^2 w / kG, Han, Benaroya & Wei 1999), c^2 (1 + r^2 P^2) / 2 = 1 (modal mass with
+    # rotary inertia = rho A L); first spectrum P > 0, second P < 0.
+    from synth.resonators.timoshenko import mode_shapes
+
+    ref = STEEL_CHECK
+    beam = dict(length=ref["length"], radius_of_gyration=ref["radius"], youngs_modulus=ref["youngs"],
+                kappa_shear=ref["kappa_shear"], density=ref["density"])
+    x = np.linspace(0.0, 1.0, 201)
+    for n in (1, 2, 5):
+        k = n * math.pi / ref["length"]
+        r2 = ref["radius"] ** 2
+        a = ref["density"] ** 2 * r2 / ref["kappa_shear"]
+        b = ref["density"] + ref["density"] * r2 * k**2 * (1.0 + ref["youngs"] / ref["kappa_shear"])
+        c = ref["youngs"] * r2 * k**4
+        for omega2 in ((b - math.sqrt(b * b - 4 * a * c)) / (2 * a), (b + math.sqrt(b * b - 4 * a * c)) / (2 * a)):
+            shapes = mode_shapes("pinned-pinned", [math.sqrt(omega2) / (2 * math.pi)], **beam)
+            p = (k * k - ref["density"] * omega2 / ref["kappa_shear"]) / k
+            amp = math.sqrt(2.0 / (1.0 + r2 * p * p))
+            w, psi = shapes.deflection(x)[:, 0], shapes.rotation(x)[:, 0]
+            sign = np.sign(w[np.argmax(np.abs(w))] * np.sin(n * math.pi * x[np.argmax(np.abs(w))]))
+            np.testing.assert_allclose(sign * w, amp * np.sin(n * math.pi * x), atol=1e-10)
+            np.testing.assert_allclose(sign * psi, amp * p * np.cos(n * math.pi * x), atol=1e-8 * abs(amp * p))
+            assert bool(shapes.bending[0]) == (p > 0)
+
+
+@pytest.mark.parametrize("supports", SUPPORTS)
+def test_mode_shapes_satisfy_the_ends_and_the_modal_mass(supports):
+    # Boundary conditions (Han et al. 1999): pinned w = psi' = 0, clamped w = psi = 0, free psi' = w' - psi = 0,
+    # by finite differences here; modal mass integral (w^2 + r^2 psi^2) dx / L = 1 by the trapezoid rule.
+    from synth.resonators.timoshenko import mode_shapes
+
+    bar = BARS["rosewood"]
+    ref = _as_ref(bar)
+    beam = dict(length=ref["length"], radius_of_gyration=ref["radius"], youngs_modulus=ref["youngs"],
+                kappa_shear=ref["kappa_shear"], density=ref["density"])
+    f = uniform_frequencies(supports, 8, **beam)
+    shapes = mode_shapes(supports, f, **beam)
+    x = np.linspace(0.0, 1.0, 40001)
+    w, psi = shapes.deflection(x), shapes.rotation(x)
+    mass = np.trapezoid(w**2 + ref["radius"] ** 2 * psi**2, x, axis=0)
+    np.testing.assert_allclose(mass, 1.0, rtol=1e-6)
+    dx = ref["length"] * (x[1] - x[0])
+    for end, i, step in ((supports.split("-")[0], 0, 1), (supports.split("-")[1], -1, -1)):
+        def slope(v):  # second-order one-sided difference into the bar
+            return step * (-3.0 * v[i] + 4.0 * v[i + step] - v[i + 2 * step]) / (2.0 * dx)
+
+        dw, dpsi = slope(w), slope(psi)
+        scale_w, scale_psi = np.max(np.abs(w), axis=0), np.max(np.abs(psi), axis=0)
+        if end in ("pinned", "clamped"):
+            np.testing.assert_allclose(w[i] / scale_w, 0.0, atol=1e-9)
+        if end == "clamped":
+            np.testing.assert_allclose(psi[i] / scale_psi, 0.0, atol=1e-9)
+        if end in ("pinned", "free"):
+            np.testing.assert_allclose(dpsi / (scale_psi / ref["length"]), 0.0, atol=1e-4)
+        if end == "free":
+            np.testing.assert_allclose((dw - psi[i]) / scale_psi, 0.0, atol=1e-4)

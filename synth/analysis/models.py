@@ -350,8 +350,9 @@ def string_geometry(*, f0_hz, inharmonicity, length, density, youngs_modulus, en
     youngs_modulus : float > 0, Pa
     ends : {"pinned", "clamped"}
         As the patch's ``resonator.ends``.  Clamped ends raise every partial
-        by Fletcher's factor ``1 + 2 sqrt(B) / pi + 4 B / pi**2``, so the
-        fitted f0 is that factor times the string's ``sqrt(T / mu) / (2 L)``.
+        to the exact clamped law ``f_n = f0 nu_n sqrt(1 + B nu_n**2)``
+        (:func:`synth.resonators.string_clamped.clamped_mode_numbers`): the
+        comb's partial 1 is the string's, from which its ``sqrt(T / mu) / (2 L)``.
 
     Returns
     -------
@@ -392,8 +393,11 @@ def string_geometry(*, f0_hz, inharmonicity, length, density, youngs_modulus, en
     if ends not in ("pinned", "clamped"):
         raise PatchError(f"must be pinned or clamped, got {ends!r}", key="ends")
     f0, b, length, density, youngs_modulus = (float(v) for v in values.values())
-    if ends == "clamped":
-        f0 /= 1.0 + 2.0 * math.sqrt(b) / math.pi + 4.0 * b / math.pi**2
+    if ends == "clamped":  # the comb's partial 1, f0 sqrt(1 + B), is the clamped string's f0 nu_1 sqrt(1 + B nu_1^2)
+        from ..resonators.string_clamped import clamped_mode_numbers
+
+        nu = float(clamped_mode_numbers([1], b)[0])
+        f0 *= math.sqrt(1.0 + b) / (nu * math.sqrt(1.0 + b * nu * nu))
     diameter = 8.0 * length**2 * f0 / math.pi * math.sqrt(b * density / youngs_modulus)
     tension = math.pi * density * length**2 * f0**2 * diameter**2
     return diameter, tension

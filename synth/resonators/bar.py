@@ -16,21 +16,38 @@ rotary inertia, which lower the upper modes:
 * pinned-pinned is exact, the smaller root of
   ``(rho**2 I / kappa G) w**4 - [rho A + rho I k**2 (1 + E / kappa G)] w**2 + E I k**4 = 0``
   with ``k = n pi / L`` [2]_;
-* the other supports multiply each Euler-Bernoulli frequency by the ratio
-  Timoshenko / Euler-Bernoulli of two finite-element solves of the same mesh
-  (see :mod:`.bar_fe`), whose discretisation errors largely cancel; the mode
-  shapes stay the closed-form thin-bar ones.  Above the finite-element modes
-  (:data:`FE_MAX_MODES`) the ratio is the pinned-pinned one at the same
-  wavenumber.
+* every support's frequencies are the roots of the exact frequency
+  determinant and its mode shapes the determinant's null vectors
+  (:mod:`.timoshenko`), normalised on the modal mass with rotary inertia,
+  ``integral (rho A w**2 + rho I psi**2) dx`` = the bar's mass (the right
+  measure for a transverse point force: see
+  :func:`.timoshenko.mode_shapes`).  Shaped bars take the same from the
+  finite-element eigenvectors (``v.T M v = 1`` with the rotary mass).
 
-``kappa`` is 5/6 for a rectangle and ``6 (1 + nu) / (7 + 6 nu)`` for a round
-rod (Cowper 1966, J. Appl. Mech. 33:335, from memory).
+Second spectrum: above the cut-off ``f_c = sqrt(kappa G A / (rho I)) / 2 pi``
+(reported as ``shear_cutoff_hz``; a shaped bar's at its thickest section,
+where it is lowest) Timoshenko theory has a second family of
+modes, in which the cross-sections turn against the slope of the centre line
+(``integral w' psi dx < 0``; for pinned-pinned exactly the upper root of each
+wavenumber).  One rule for every support, uniform or shaped: they are all
+listed, in frequency order, labelled ``S1``, ``S2``, ... with their own
+shapes (the bending modes keep ``B1``, ``B2``, ... counted among themselves),
+and :func:`count_below` counts both families.  The one mode without any
+transverse motion, pinned-pinned's uniform rotation at exactly ``f_c``, is
+left out: a transverse force does not drive it nor a transverse pickup hear
+it.  Near and above ``f_c`` the wavelength is comparable with the thickness
+and beam theory is only a rough guide (common practice).
+
+``kappa`` (key ``shear_coefficient``): by default 5/6 for a rectangle and
+Cowper's ``6 (1 + nu) / (7 + 6 nu)`` for a round rod; ``cowper`` gives
+Cowper's value for either section [4]_ (rectangle
+``10 (1 + nu) / (12 + 11 nu)``), ``5/6`` gives 5/6 for either, or a number.
 
 Shaped bars (``profile``): thicknesses at evenly spaced points from one end to
 the other, linearly interpolated; modes by finite elements (:mod:`.bar_fe`).
 
 Free-free bars drop the two rigid-body modes.  Modes are labelled ``B1``,
-``B2``, ... (bending).  A position is a fraction of the length on the bar's
+``B2``, ... (bending) and ``S1``, ``S2``, ... (second spectrum).  A position is a fraction of the length on the bar's
 centre line, where torsional modes have a node, so torsion is not modelled.
 Modes above :data:`MODE_CEILING_HZ` are not computed, nor more than
 :data:`MAX_MODES` (:data:`FE_MAX_MODES` for a shaped bar).
@@ -46,6 +63,9 @@ References
 .. [3] T. D. Rossing, *Science of Percussion Instruments*, World Scientific
    (2000), ch. 4 (from memory): free-free bars are supported at the nodes of
    the first mode, 0.224 L from each end (also common practice).
+.. [4] G. R. Cowper, "The shear coefficient in Timoshenko's beam theory",
+   J. Appl. Mech. 33(2), 335-340 (1966), table 1 (issue number and table
+   from memory).
 """
 from __future__ import annotations
 
@@ -59,6 +79,7 @@ from ..modes import Solution, frozen_array
 from ..schema import Field, convert
 from . import bar_fe
 from . import timoshenko as exact_timoshenko
+from . import torsion
 from .common import SpecError, UnreachablePitch
 
 __all__ = [
@@ -81,6 +102,8 @@ __all__ = [
     "first_frequency",
     "lowest_frequencies",
     "shear_coefficient",
+    "cowper_shear_coefficient",
+    "SHEAR_COEFFICIENTS",
     "MODE_CEILING_HZ",
     "MIN_LENGTH_RATIO",
     "TIMOSHENKO_NOTE_CENTS",
@@ -89,6 +112,8 @@ __all__ = [
 
 SUPPORTS = ("free-free", "clamped-free", "pinned-pinned", "clamped-clamped")
 THEORIES = ("timoshenko", "euler-bernoulli")
+#: Named shear coefficients (key ``shear_coefficient``; a number is also allowed).
+SHEAR_COEFFICIENTS = ("5/6", "cowper")
 
 #: Modes above this frequency (Hz) are not computed: beyond any render's use.
 MODE_CEILING_HZ = 60e3
@@ -124,6 +149,9 @@ FIELDS = {
     "supports": Field("choice", default="free-free", choices=SUPPORTS),
     "theory": Field("choice", default="timoshenko", choices=THEORIES),
     "shear_modulus": Field("pressure", positive=True),
+    "shear_coefficient": Field("any"),
+    "torsion": Field("bool", default="auto", keywords=("auto",),
+                     takes="true, false or auto (torsional modes when the strike or the pickup is off the centre line)"),
 }
 
 _PROFILE_HELP = "thicknesses at evenly spaced points, the first at one end and the last at the other"
@@ -156,6 +184,12 @@ class BarSpec:
     shaped_for_hz : float or None, Hz
         A shaped bar retuned away from the pitch its profile was made for
         (:func:`retune` keeps it): the report warns that its tuned ratios moved.
+    shear_coefficient : None, "5/6", "cowper" or float
+        Timoshenko's kappa (:func:`shear_coefficient`); None: the section's default.
+    torsion : bool or "auto"
+        Also list the torsional modes (:mod:`synth.resonators.torsion`); the
+        patch loader turns "auto" into True when the excitation or the pickup
+        is off the centre line (``across``), else False.
     """
 
     length: float
@@ -172,6 +206,8 @@ class BarSpec:
     pitch_hz: float | None = None
     material: str = "custom"
     shaped_for_hz: float | None = None
+    shear_coefficient: object = None
+    torsion: object = False
 
     TYPE: ClassVar[str] = "bar"
 
@@ -187,12 +223,47 @@ class BarSpec:
         return max(sizes + list(self.profile or ()))
 
 
-def shear_coefficient(spec):
-    """Timoshenko's kappa: 5/6 (rectangle) or Cowper's 6(1+nu)/(7+6nu) (round)."""
-    if spec.section == "round":
-        nu = spec.poisson_ratio
+def cowper_shear_coefficient(section, poisson_ratio):
+    """Cowper's shear coefficient [4]_ of a solid section.
+
+    ``10 (1 + nu) / (12 + 11 nu)`` for a rectangle, ``6 (1 + nu) / (7 + 6 nu)``
+    for a solid circle.
+
+    >>> round(cowper_shear_coefficient("rectangular", 0.3), 6), round(cowper_shear_coefficient("round", 0.3), 6)
+    (0.849673, 0.886364)
+    """
+    nu = poisson_ratio
+    if section == "round":
         return 6.0 * (1.0 + nu) / (7.0 + 6.0 * nu)
-    return RECTANGLE_KAPPA
+    return 10.0 * (1.0 + nu) / (12.0 + 11.0 * nu)
+
+
+def shear_coefficient(spec):
+    """Timoshenko's kappa of `spec` (key ``shear_coefficient``).
+
+    Absent: 5/6 for a rectangle, Cowper's value for a round rod; ``"5/6"``:
+    5/6 for either; ``"cowper"``: :func:`cowper_shear_coefficient`; a number: itself.
+    """
+    rule = spec.shear_coefficient
+    if rule == "cowper" or (rule is None and spec.section == "round"):
+        return cowper_shear_coefficient(spec.section, spec.poisson_ratio)
+    if rule is None or rule == "5/6":
+        return RECTANGLE_KAPPA
+    return float(rule)
+
+
+_SHEAR_HELP = "5/6, cowper or a number in (0, 1]"
+
+
+def _read_shear_coefficient(value):
+    """None, ``"5/6"``, ``"cowper"`` or a float in (0, 1] from the patch value."""
+    if value is None:
+        return None
+    if isinstance(value, str) and value.strip().lower() in SHEAR_COEFFICIENTS:
+        return value.strip().lower()
+    if isinstance(value, (int, float)) and not isinstance(value, bool) and math.isfinite(value) and 0.0 < value <= 1.0:
+        return float(value)
+    raise SpecError(f"must be {_SHEAR_HELP}, got {value!r}", key="shear_coefficient")
 
 
 def _read_profile(value):
@@ -272,6 +343,8 @@ def build_spec(values):
         supports=values["supports"],
         theory=values["theory"],
         material=material.name,
+        shear_coefficient=_read_shear_coefficient(values["shear_coefficient"]),
+        torsion=values["torsion"],
     )
     if values["pitch"] is not None:
         try:
@@ -475,29 +548,34 @@ _COUNTED_ORDERS = 4 * MAX_MODES
 
 
 def _modes_below(spec, length, frequency_hz):
-    """About how many bending modes of `spec` made `length` long lie below `frequency_hz`.
+    """How many modes of `spec` made `length` long lie below `frequency_hz`.
 
-    Mode n has ``beta_n L`` close to ``(n + 1/2) pi`` (free-free,
-    clamped-clamped), ``(n - 1/2) pi`` (clamped-free) or exactly ``n pi``
-    (pinned-pinned) (Blevins [1]_); at that wavenumber the frequency is the
-    thin bar's, or with ``theory: timoshenko`` the lower branch of the
-    pinned-pinned Timoshenko dispersion relation [2]_, which shear and rotary
-    inertia bring below the thin bar's (the rosewood blank of
-    patches/bar-rosewood-blank-c4.yaml has 26 modes below 24 kHz; thin theory
-    counts 22 below 60 kHz, and the old count stopped its table at 21.8 kHz,
-    below Nyquist at 48 kHz).  A shaped bar is taken
-    at its thinnest, which sounds lowest.  Second-spectrum modes (above the
-    shear cut-off) are not counted: callers that need them all grow the count.
+    A uniform bar with ``theory: timoshenko``: exactly, the roots of its
+    frequency equation below the limit (:mod:`.timoshenko`), both spectra,
+    less pinned-pinned's uniform rotation at the cut-off as :func:`solve`
+    leaves it out (shear and rotary inertia bring many more modes below a
+    limit than thin theory: the rosewood blank of
+    patches/bar-rosewood-blank-c4.yaml has 26 below 24 kHz; thin theory counts
+    22 below 60 kHz).  A thin bar: mode n has ``beta_n L`` close to
+    ``(n + 1/2) pi`` (free-free, clamped-clamped), ``(n - 1/2) pi``
+    (clamped-free) or exactly ``n pi`` (pinned-pinned) (Blevins [1]_); a shaped
+    bar (counted as thin, see :func:`_count_below_ceiling`) is taken at its
+    thinnest, which sounds lowest.
     """
     size = min(spec.profile) if spec.profile else (spec.diameter or spec.thickness)
     radius = _radius_of_gyration(spec, size)
+    if spec.theory == "timoshenko" and spec.profile is None:
+        beam = dict(length=length, radius_of_gyration=radius, youngs_modulus=spec.youngs_modulus,
+                    kappa_shear=spec.shear_modulus * shear_coefficient(spec), density=spec.density)
+        found = exact_timoshenko.uniform_frequencies(spec.supports, _COUNTED_ORDERS, max_hz=frequency_hz, **beam)
+        if spec.supports == "pinned-pinned":
+            cutoff = exact_timoshenko.cutoff_frequency(radius_of_gyration=radius, kappa_shear=beam["kappa_shear"],
+                                                       density=spec.density)
+            found = found[np.abs(found / cutoff - 1.0) > 1e-12]
+        return int(found.size)
     offset = -0.5 if spec.supports == "clamped-free" else (0.0 if spec.supports == "pinned-pinned" else 0.5)
     k = (np.arange(1, _COUNTED_ORDERS + 1) + offset) * math.pi / length
-    if spec.theory == "timoshenko":
-        omega = _timoshenko_omega(k, radius, spec.youngs_modulus, spec.shear_modulus * shear_coefficient(spec),
-                                  spec.density)
-    else:
-        omega = k * k * radius * math.sqrt(spec.youngs_modulus / spec.density)
+    omega = k * k * radius * math.sqrt(spec.youngs_modulus / spec.density)
     return int(np.count_nonzero(omega < 2.0 * math.pi * frequency_hz))
 
 
@@ -513,7 +591,7 @@ def _count_below_ceiling(spec, length, n_modes):
 
 
 def count_below(spec, limit_hz):
-    """About how many modes of `spec` lie below `limit_hz` (an estimate: see :func:`_modes_below`).
+    """How many modes of `spec` lie below `limit_hz` (exact for a uniform Timoshenko bar: :func:`_modes_below`).
 
     :meth:`synth.solvecache.SolveCache.solve_below` grows the count when
     the highest solved mode is still below the limit.  A shaped bar answers
@@ -521,66 +599,98 @@ def count_below(spec, limit_hz):
     limit: its finite-element mesh follows the count, and so its modes do
     not move with the sample rate (at most :data:`FE_MAX_MODES` of them).
     """
+    twist = torsion.count_below(spec, limit_hz) if spec.torsion is True else 0
     if spec.profile is not None:
-        return min(_count_below_ceiling(spec, spec.length, MAX_MODES), FE_MAX_MODES)
-    return _modes_below(spec, spec.length, limit_hz)
+        return min(_count_below_ceiling(spec, spec.length, MAX_MODES), FE_MAX_MODES) + twist
+    return _modes_below(spec, spec.length, limit_hz) + twist
 
 
 def _solve(spec, length, n, *, with_shift=True):
-    """(frequency_hz, shift_cents or None, shape(xi) -> (P, n) mass-normalised, solver, elements)."""
+    """(frequency_hz, shift_cents or None, shape(xi) -> (P, n) mass-normalised, solver, elements, bending).
+
+    `bending` (bool per mode) marks the first-spectrum modes; shift_cents is
+    NaN for second-spectrum ones (no thin-bar counterpart).
+    """
     timoshenko = spec.theory == "timoshenko"
+    kappa = shear_coefficient(spec)
     if spec.profile is not None:
         n = min(n, FE_MAX_MODES)
-        frequency, dofs, phi, node_x = bar_fe.spec_modes(spec, length, n, timoshenko, shear_coefficient(spec))
+        frequency, dofs, phi, node_x = bar_fe.spec_modes(spec, length, n, timoshenko, kappa)
+        bending = bar_fe.rotation_follows_slope(node_x, phi, dofs) if timoshenko else np.ones(len(frequency), bool)
         shift = None
         if timoshenko and with_shift:
             # The thin-bar reference only feeds the report (shear cents): the faster sparse solve serves.
-            thin = bar_fe.spec_modes(spec, length, n, False, shear_coefficient(spec), sparse=True)[0]
-            shift = 1200.0 * np.log2(frequency / thin)
+            thin = bar_fe.spec_modes(spec, length, n, False, kappa, sparse=True)[0]
+            shift = _paired_shift(frequency, bending, thin)
         scale = math.sqrt(bar_fe.spec_mass(spec, length))
 
         def shape(xi):
             return scale * bar_fe.deflection_at(node_x, phi, dofs, np.asarray(xi) * length)
 
         kind = "Timoshenko" if timoshenko else "Hermite (Euler-Bernoulli)"
-        return frequency, shift, shape, f"finite elements, {kind}", len(node_x) - 1
+        return frequency, shift, shape, f"finite elements, {kind}", len(node_x) - 1, bending
     size = spec.diameter if spec.section == "round" else spec.thickness
     radius = _radius_of_gyration(spec, size)
     roots = beam_roots(spec.supports, n)
     thin = euler_bernoulli_frequencies(roots, length=length, radius_of_gyration=radius, youngs_modulus=spec.youngs_modulus, density=spec.density)
-
-    def shape(xi):
-        return _uniform_shapes(spec.supports, roots, xi)
-
     if not timoshenko:
-        return thin, None, shape, "closed form, Euler-Bernoulli", None
-    if spec.supports == "pinned-pinned":
-        frequency = timoshenko_pinned_frequencies(
-            n, length=length, radius_of_gyration=radius, youngs_modulus=spec.youngs_modulus,
-            shear_modulus=spec.shear_modulus, kappa=shear_coefficient(spec), density=spec.density,
-        )
-        return frequency, 1200.0 * np.log2(frequency / thin), shape, "closed form, Timoshenko (exact)", None
-    frequency = exact_timoshenko.uniform_frequencies(
-        spec.supports, n, length=length, radius_of_gyration=radius, youngs_modulus=spec.youngs_modulus,
-        kappa_shear=spec.shear_modulus * shear_coefficient(spec), density=spec.density, max_hz=MODE_CEILING_HZ,
-    )
+        def shape(xi):
+            return _uniform_shapes(spec.supports, roots, xi)
+
+        return thin, None, shape, "closed form, Euler-Bernoulli", None, np.ones(n, bool)
+    beam = dict(length=length, radius_of_gyration=radius, youngs_modulus=spec.youngs_modulus,
+                kappa_shear=spec.shear_modulus * kappa, density=spec.density)
+    frequency = exact_timoshenko.uniform_frequencies(spec.supports, n + 1, max_hz=MODE_CEILING_HZ, **beam)
     if frequency.size == 0:  # even the lowest mode is above the ceiling: report it anyway
-        frequency = exact_timoshenko.uniform_frequencies(
-            spec.supports, 1, length=length, radius_of_gyration=radius, youngs_modulus=spec.youngs_modulus,
-            kappa_shear=spec.shear_modulus * shear_coefficient(spec), density=spec.density,
-        )
+        frequency = exact_timoshenko.uniform_frequencies(spec.supports, 2, **beam)
+    if not with_shift:  # a length solve: the frequencies only, without pinned-pinned's uniform rotation
+        if spec.supports == "pinned-pinned":
+            cutoff = exact_timoshenko.cutoff_frequency(radius_of_gyration=radius, kappa_shear=beam["kappa_shear"],
+                                                       density=spec.density)
+            frequency = frequency[np.abs(frequency / cutoff - 1.0) > 1e-12]
+        return frequency[:n], None, None, None, None, None
+    shapes = exact_timoshenko.mode_shapes(spec.supports, frequency, **beam)
+    moving = shapes.transverse > _NO_TRANSVERSE  # pinned-pinned's uniform rotation at f_c has none
+    index = np.flatnonzero(moving)[:n]
+    frequency, bending = frequency[index], shapes.bending[index]
     solver = "frequency equation, Timoshenko (exact; Han, Benaroya & Wei 1999)"
-    found = frequency.size
 
-    def shape_found(xi):  # thin-bar shapes of the modes found below the ceiling
-        return shape(xi)[:, :found]
+    def shape_found(xi):  # Timoshenko deflections of the modes found below the ceiling
+        return shapes.deflection(xi)[:, index]
 
-    return frequency, 1200.0 * np.log2(frequency / thin[:found]), shape_found, solver, None
+    return frequency, _paired_shift(frequency, bending, thin), shape_found, solver, None, bending
+
+
+#: A mode whose transverse share of the modal mass is below this has no transverse motion.
+_NO_TRANSVERSE = 1e-9
+
+
+def _paired_shift(frequency, bending, thin):
+    """Cents from thin-bar theory: the k-th bending mode against the k-th thin-bar mode; NaN for shear modes."""
+    shift = np.full(len(frequency), np.nan)
+    n_bending = min(int(np.count_nonzero(bending)), len(thin))
+    at = np.flatnonzero(bending)[:n_bending]
+    shift[at] = 1200.0 * np.log2(frequency[at] / np.asarray(thin)[:n_bending])
+    return shift
+
+
+def mode_labels(bending):
+    """``B1``, ``B2``, ... for bending modes and ``S1``, ``S2``, ... for second-spectrum ones, in order."""
+    counts = {"B": 0, "S": 0}
+    labels = []
+    for flag in bending:
+        kind = "B" if flag else "S"
+        counts[kind] += 1
+        labels.append(f"{kind}{counts[kind]}")
+    return tuple(labels)
+
+
+_SHEAR_RULES = {"5/6": "5/6 (Timoshenko's rectangle value)", "cowper": "Cowper 1966, nu-dependent"}
 
 
 def _shear_note(labels, shift):
     """Report note: where the (applied) Timoshenko correction exceeds a few cents, or None."""
-    big = [(label, s) for label, s in zip(labels, shift) if s < -TIMOSHENKO_NOTE_CENTS]
+    big = [(label, s) for label, s in zip(labels, shift) if s is not None and s < -TIMOSHENKO_NOTE_CENTS]
     if not big:
         return None
     shown = ", ".join(f"{label} {s:+.0f}" for label, s in big[:4])
@@ -626,15 +736,17 @@ def solve(spec, n_modes):
     -------
     Solution
         Positions are fractions of the length from the first end.  Labels
-        ``B1``, ``B2``, ...; shapes scaled so that ``integral rho A phi**2 dx``
-        is the bar's mass for every mode; columns n_nodes, node_positions
+        ``B1``, ``B2``, ... (bending) and ``S1``, ``S2``, ... (Timoshenko's
+        second spectrum, module Notes); shapes scaled so that the modal mass
+        ``integral (rho A phi**2 + rho I psi**2) dx`` (no ``psi`` term for a thin
+        bar) is the bar's mass for every mode; columns n_nodes, node_positions
         (fractions of the length, supported ends included), nodes_m and, for
         Timoshenko theory, timoshenko_shift_cents (the shift from thin-bar
-        theory).
+        theory; None for a second-spectrum mode).
     """
     length = spec.length
     n = _count_below_ceiling(spec, length, n_modes)
-    frequency, shift, shape, solver, elements = _solve(spec, length, n)
+    frequency, shift, shape, solver, elements, bending = _solve(spec, length, n)
     n = len(frequency)
     if spec.pitch_hz is not None:
         # Remove the last trace of the length solve's tolerance and mesh: the
@@ -648,7 +760,7 @@ def solve(spec, n_modes):
     def weights(position):
         return (signs * shape(np.array([position]))[0])[:keep]
 
-    labels = tuple(f"B{m}" for m in range(1, keep + 1))
+    labels = mode_labels(bending[:keep])
     frequency = frequency[:keep]
     shift = None if shift is None else shift[:keep]
     columns = {
@@ -657,7 +769,7 @@ def solve(spec, n_modes):
         "nodes_m": tuple(tuple(round(x * length, 6) for x in p) for p in nodes[:keep]),
     }
     if shift is not None:
-        columns["timoshenko_shift_cents"] = tuple(float(s) for s in shift)
+        columns["timoshenko_shift_cents"] = tuple(None if math.isnan(s) else float(s) for s in shift)
     parameters = {
         "material": spec.material,
         "section": spec.section,
@@ -680,7 +792,13 @@ def solve(spec, n_modes):
     if spec.theory == "timoshenko":
         parameters["shear_modulus_pa"] = spec.shear_modulus
         parameters["shear_coefficient"] = shear_coefficient(spec)
-        note = _shear_note(labels, shift)
+        if spec.shear_coefficient is not None:
+            parameters["shear_coefficient_rule"] = _SHEAR_RULES.get(spec.shear_coefficient, "given")
+        size = max(spec.profile) if spec.profile else (spec.diameter or spec.thickness)  # shaped: lowest, thickest
+        parameters["shear_cutoff_hz"] = exact_timoshenko.cutoff_frequency(
+            radius_of_gyration=_radius_of_gyration(spec, size), kappa_shear=spec.shear_modulus * shear_coefficient(spec),
+            density=spec.density)
+        note = _shear_note(labels, columns["timoshenko_shift_cents"])
         if note is not None:
             parameters["shear_correction"] = note
     parameters["solver"] = solver
@@ -689,7 +807,7 @@ def solve(spec, n_modes):
     if spec.supports == "free-free":
         # Where to hang a free-free bar: the nodes of its first mode (Rossing [3]).
         parameters["suspension_points_m"] = [round(x * length, 5) for x in nodes[0]]
-    return Solution(
+    solution = Solution(
         resonator="bar",
         frequency_hz=frozen_array(frequency),
         labels=labels,
@@ -698,6 +816,9 @@ def solve(spec, n_modes):
         parameters=parameters,
         warnings=tuple(_warnings(spec, labels, frequency, shift, length, n_modes)),
     )
+    if spec.torsion is True:  # the torsional family at the same (pitch-scaled) length; the pitch stays B1's
+        solution = torsion.with_torsion(solution, torsion.solve(spec, n_modes, length=length), max_modes=n_modes)
+    return solution
 
 
 def bar_modes(spec, *, excitation_position, pickup_position, n_modes):

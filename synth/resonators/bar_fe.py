@@ -58,6 +58,7 @@ __all__ = [
     "spec_modes",
     "spec_mass",
     "signs_and_nodes",
+    "rotation_follows_slope",
 ]
 
 #: Fewest elements in any mesh.
@@ -339,6 +340,29 @@ def deflection_at(node_x, phi, dofs, x):
     return np.einsum("pi,pim->pm", n_w, dofs[index])
 
 
+def rotation_follows_slope(node_x, phi, dofs):
+    """Which modes are bending (first-spectrum) modes: ``integral w' theta dx > 0``.
+
+    In a first-spectrum mode the cross-sections turn with the centre line; in
+    a second-spectrum (shear) mode of Timoshenko theory they turn against it
+    (the rule :func:`synth.resonators.timoshenko.mode_shapes` applies to the
+    exact shapes; for pinned-pinned it splits the two roots of each
+    wavenumber exactly).
+
+    Returns
+    -------
+    ndarray [shape=(n_modes,)], bool
+    """
+    node_x = np.asarray(node_x, dtype=float)
+    lengths = np.diff(node_x)
+    _, n_t, d_w, _ = _shape_functions(_GAUSS_X[None, :], lengths[:, None], np.asarray(phi)[:, None])
+    index = 2 * np.arange(len(lengths))[:, None] + np.arange(4)[None, :]  # (E, 4)
+    local = dofs[index]  # (E, 4, M)
+    slope = np.einsum("eqi,eim->eqm", d_w, local)
+    theta = np.einsum("eqi,eim->eqm", n_t, local)
+    return np.einsum("eq,eqm->m", _GAUSS_W[None, :] * lengths[:, None], slope * theta) > 0.0
+
+
 # --------------------------------------------------------------------------
 # A bar spec (synth.resonators.bar.BarSpec) on a mesh.
 
@@ -426,5 +450,8 @@ def signs_and_nodes(shape, n_modes, supports):
         v = inner[:, m]
         i = np.flatnonzero(v[:-1] * v[1:] < 0.0)
         crossing = x[i] + (x[i + 1] - x[i]) * v[i] / (v[i] - v[i + 1])
+        # A node exactly on a grid point (the middle of an antisymmetric mode): zero between opposite signs.
+        j = np.flatnonzero((v[1:-1] == 0.0) & (v[:-2] * v[2:] < 0.0)) + 1
+        crossing = np.sort(np.concatenate([crossing, x[j]]))
         nodes.append(tuple(([0.0] if ends[0] else []) + [float(c) for c in crossing] + ([1.0] if ends[1] else [])))
     return signs, nodes

@@ -54,10 +54,12 @@ References
 from __future__ import annotations
 
 import math
+from dataclasses import dataclass
 
 import numpy as np
 
-__all__ = ["SUPPORTS", "cutoff_frequency", "uniform_frequencies", "frequency_determinant"]
+__all__ = ["SUPPORTS", "cutoff_frequency", "uniform_frequencies", "frequency_determinant", "mode_shapes",
+           "ModeShapes"]
 
 #: The support cases handled.
 SUPPORTS = ("free-free", "clamped-free", "pinned-pinned", "clamped-clamped")
@@ -411,3 +413,162 @@ def _clamped_free(n_modes, top, q, e, n_k):
         if exact or (np.all(np.diff(sep) > 0.0) and np.all(value[:-1] * value[1:] < 0.0)):
             break
     return _refine(clamped, sep[:-1], sep[1:], value[:-1], value[1:])
+
+
+# --------------------------------------------------------------------------
+# Mode shapes.
+
+
+def _columns(omega, q, e, x):
+    """Basis F1, G1, F2, G2 (module Notes) at centred positions `x`: (W, W', psi, psi'), each (P, 4).
+
+    ``a`` columns carry ``e^{-a/2}`` below the cut-off, as in :func:`_state`, so
+    nothing overflows: ``C = e^{-a/2} cosh(a x)``, ``S = e^{-a/2} sinh(a x) / a``
+    (``cos(a~ x)``, ``sin(a~ x) / a~`` above it); ``C' = z S``, ``S' = C``.
+    """
+    w2 = omega * omega
+    alpha = e * q * w2
+    y = 0.5 * ((alpha + q * w2) + omega * math.sqrt(q * q * (e - 1.0) ** 2 * w2 + 4.0))  # b**2
+    z = w2 * (1.0 - e * q * q * w2) / y  # a**2, signed
+    b, a = math.sqrt(y), math.sqrt(abs(z))
+    if z > 0.0:
+        if a < 30.0:
+            c_a = math.exp(-0.5 * a) * np.cosh(a * x)
+            s_a = math.exp(-0.5 * a) * x * (np.sinh(a * x) / np.where(a * x == 0.0, 1.0, a * x) + (a * x == 0.0))
+        else:
+            up, down = np.exp(a * (x - 0.5)), np.exp(-a * (x + 0.5))
+            c_a, s_a = 0.5 * (up + down), (up - down) / (2.0 * a)
+    else:
+        c_a, s_a = np.cos(a * x), x * np.sinc(a * x / math.pi)
+    za, ab = z + alpha, alpha - y
+    cb, sb = np.cos(b * x), np.sin(b * x)
+    w = np.stack([c_a, cb, z * s_a, sb], axis=-1)
+    dw = np.stack([z * s_a, -b * sb, z * c_a, b * cb], axis=-1)
+    psi = np.stack([za * s_a, ab * sb / b, za * c_a, -ab * cb / b], axis=-1)
+    dpsi = np.stack([za * c_a, ab * cb, za * z * s_a, ab * sb], axis=-1)
+    return w, dw, psi, dpsi, alpha, b
+
+
+def _end_rows(end, values, alpha):
+    """The two boundary rows of one end (module Notes) from its (W, W', psi, psi') rows."""
+    w, dw, psi, dpsi = values
+    return {"pinned": (w, dpsi), "clamped": (w, psi), "free": (dpsi, (dw - psi) / alpha)}[end]
+
+
+_GAUSS_X, _GAUSS_W = np.polynomial.legendre.leggauss(16)
+
+
+def _gauss(n_panels):
+    """Composite 16-point Gauss-Legendre points and weights on [-1/2, 1/2] (weights sum to 1)."""
+    edges = np.linspace(-0.5, 0.5, n_panels + 1)
+    half = 0.5 / n_panels
+    points = (0.5 * (edges[:-1] + edges[1:]))[:, None] + half * _GAUSS_X[None, :]
+    return points.ravel(), np.tile(half * _GAUSS_W, n_panels)
+
+
+@dataclass(frozen=True)
+class ModeShapes:
+    """Mode shapes of a uniform Timoshenko beam (:func:`mode_shapes`).
+
+    Attributes
+    ----------
+    bending : ndarray [shape=(M,)], bool
+        True for a first-spectrum (bending) mode, whose cross-sections turn
+        with the centre line (``integral w' psi dx > 0``); False for a
+        second-spectrum (shear) mode, whose cross-sections turn against it.
+    transverse : ndarray [shape=(M,)]
+        ``integral rho A w**2 dx`` over the modal mass: 0 for a mode without
+        transverse motion (pinned-pinned's uniform rotation at the cut-off).
+    """
+
+    supports: str
+    omega: np.ndarray  # dimensionless Omega of each mode
+    coefficient: np.ndarray  # (4, M): basis coefficients, divided by the modal-mass norm
+    q: float
+    e: float
+    length: float
+    bending: np.ndarray
+    transverse: np.ndarray
+
+    def _at(self, fraction, which):
+        x = np.atleast_1d(np.asarray(fraction, dtype=float)) - 0.5
+        out = np.zeros((x.size, self.omega.size))
+        for m, omega in enumerate(self.omega):
+            out[:, m] = _columns(omega, self.q, self.e, x)[which] @ self.coefficient[:, m]
+        return out
+
+    def deflection(self, fraction):
+        """``w`` (dimensionless) at fractions of the length: ndarray [shape=(P, M)].
+
+        Scaled so that ``integral_0^L (rho A w**2 + rho I psi**2) dx = rho A L``, the
+        bar's mass: one modal mass for every mode, rotary inertia included.
+        """
+        return self._at(fraction, 0)
+
+    def rotation(self, fraction):
+        """``psi`` (rad/m per unit ``w``) at fractions of the length: ndarray [shape=(P, M)]."""
+        return self._at(fraction, 2) / self.length
+
+
+def mode_shapes(supports, frequency_hz, *, length, radius_of_gyration, youngs_modulus, kappa_shear, density):
+    """Mode shapes of a uniform Timoshenko beam at its natural frequencies, on a common modal mass.
+
+    Parameters
+    ----------
+    supports : {"free-free", "clamped-free", "pinned-pinned", "clamped-clamped"}
+        The first named end is at fraction 0.
+    frequency_hz : array_like [shape=(M,)], Hz
+        Natural frequencies (roots of :func:`frequency_determinant`, e.g. from
+        :func:`uniform_frequencies`).
+    length, radius_of_gyration, youngs_modulus, kappa_shear, density
+        As :func:`uniform_frequencies`.
+
+    Returns
+    -------
+    ModeShapes
+        ``deflection(fraction)`` and ``rotation(fraction)`` of each mode, its
+        spectrum (``bending``) and transverse share.
+
+    Notes
+    -----
+    The modal mass is ``integral (rho A w**2 + rho I psi**2) dx``, the
+    kinetic energy of Timoshenko's equations, with respect to which their
+    modes are orthogonal; a transverse point force ``F`` at ``x_e`` does work
+    ``F w(x_e)`` only, so mode ``n`` is driven by ``F w_n(x_e) / M_n`` and
+    heard as ``w_n(x_p)``: with ``M_n`` the same for every mode (the bar's
+    mass), ``w_n(x_e) w_n(x_p)`` weighs the modes as for a thin bar.
+
+    The null vector of the 4x4 boundary matrix (rows scaled to unit size,
+    columns by their end values; smallest singular vector) gives the coefficients of
+    the basis of the module Notes.  For pinned-pinned it is a pure sine,
+    ``w = sin(n pi x / L)``, on either spectrum.  Integrals by 16-point
+    Gauss-Legendre quadrature on panels of at most 4 rad of the fastest wave
+    (``b``; ``a <= b``).
+    """
+    if supports not in SUPPORTS:
+        raise ValueError(f"supports must be one of {SUPPORTS}, got {supports!r}")
+    q, e, unit = _dimensionless(length, radius_of_gyration, youngs_modulus, kappa_shear, density)
+    omega = 2.0 * math.pi * np.atleast_1d(np.asarray(frequency_hz, dtype=float)) / unit
+    left, right = supports.split("-")
+    coefficients = np.zeros((4, omega.size))
+    bending = np.zeros(omega.size, dtype=bool)
+    transverse = np.zeros(omega.size)
+    for m, om in enumerate(omega):
+        ends = _columns(om, q, e, np.array([-0.5, 0.5]))
+        alpha, b = ends[4], ends[5]
+        rows = np.array(_end_rows(left, [v[0] for v in ends[:4]], alpha) + _end_rows(right, [v[1] for v in ends[:4]], alpha))
+        rows /= np.max(np.abs(rows), axis=1, keepdims=True)
+        # Columns scaled by their end values (W, W'/b, psi/b, psi'/b**2), never all zero (module Notes),
+        # not by the boundary rows: a column that is itself the mode vanishes there.
+        ends_scaled = np.array([ends[0][1], ends[1][1] / b, ends[2][1] / b, ends[3][1] / (b * b)])
+        scale = np.linalg.norm(ends_scaled, axis=0)
+        coefficient = np.linalg.svd(rows / scale)[2][-1] / scale
+        points, weights = _gauss(int(0.5 * b) + 8)  # panels of at most 4 rad (a <= b)
+        w, dw, psi = (v @ coefficient for v in _columns(om, q, e, points)[:3])
+        inertia = weights @ (w * w + q * psi * psi)
+        bending[m] = weights @ (dw * psi) > 0.0
+        transverse[m] = weights @ (w * w) / inertia
+        coefficients[:, m] = coefficient / math.sqrt(inertia)
+    for array in (omega, coefficients, bending, transverse):
+        array.flags.writeable = False
+    return ModeShapes(supports, omega, coefficients, q, e, float(length), bending, transverse)
