@@ -693,7 +693,24 @@ def _damping_values(section, top):
         values["rayleigh"] = (coefficients["alpha"], coefficients["beta"])
     if values["loss_factor"] == "material":
         values["loss_factor"], values["loss_factor_source"] = _material_loss_factor(section, top)
+    elif not section.mapping and _MATERIAL_DAMPED.get(_resonator_type(top)):
+        # No damping section: a bar or a plate of a tabulated material decays by its material's loss
+        # factor (the losses of a free solid are mostly internal); strings, membranes and air columns
+        # lose energy to the air and their supports far faster than their material does: 3 s stays.
+        name = top.mapping["resonator"].get("material")
+        material = MATERIALS.get(name) if isinstance(name, str) else None
+        if material is not None and material.loss_factor is not None:
+            values["loss_factor"], values["loss_factor_source"] = material.loss_factor, material.name
     return values
+
+
+#: Resonator types that, without a damping section, decay by their material's loss factor.
+_MATERIAL_DAMPED = {"bar": True, "plate": True}
+
+
+def _resonator_type(top):
+    resonator = top.mapping.get("resonator")
+    return resonator.get("type") if isinstance(resonator, dict) else None
 
 
 def _material_loss_factor(section, top):

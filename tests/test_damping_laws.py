@@ -81,9 +81,19 @@ class TestLossFactor:
         np.testing.assert_allclose(table.t60_s, T60_FACTOR / (math.pi * 5e-3 * table.frequency_hz), rtol=1e-12)
         assert "rosewood's tabulated value" in table.parameters["damping_law"]
 
-    def test_no_damping_section_keeps_the_two_point_default(self):
-        # The material law is opt-in: existing patches without a damping section keep 3 s.
+    def test_a_bar_without_damping_decays_by_its_material(self):
+        # Issue 16: a patch without a damping section decays plausibly: a bar or a plate of a
+        # tabulated material by its loss factor (rosewood 5e-3, synth.materials).
         table = partial_table(patch_from_text(BAR.format(material="rosewood", damping="{}")))
+        np.testing.assert_allclose(table.t60_s, T60_FACTOR / (math.pi * 5e-3 * table.frequency_hz), rtol=1e-12)
+        assert "rosewood's tabulated value" in table.parameters["damping_law"]
+
+    def test_a_string_without_damping_keeps_the_two_point_default(self):
+        # A string loses energy to the air and its supports, far faster than steel's eta 2e-4
+        # (which would ring for minutes): without a damping section every partial keeps 3 s.
+        table = partial_table(patch_from_text(
+            "name: s\nresonator: {type: string, material: music-wire, length: 0.65, diameter: 0.45 mm, pitch: A2}\n"
+            "render: {sample_rate: 8000, max_modes: 8}\n"))
         np.testing.assert_array_equal(table.t60_s, 3.0)
         assert "damping_law" not in table.parameters
 
