@@ -143,6 +143,9 @@ _PARAMETERS = {
     "torsion_fe_elements": _Param("torsion finite elements"),
     "torsion_modes": _Param("torsional modes listed"),
     "bending_fundamental_hz": _Param("first bending mode (the fundamental)", "frequency", 0.01),
+    # air-loaded membranes (synth.resonators.air_loading)
+    "air": _Param("air loading"),
+    "kettle_volume_m3": _Param("kettle volume (m³)", None, 1e-4),
     # air columns
     "temperature_c": _Param("air temperature", "temperature", 0.1),
     "speed_of_sound_m_s": _Param("speed of sound", "speed", 0.01),

@@ -243,7 +243,15 @@ def unweighted_partials(patch, *, modes=None, detune_cents=0.0, cache=None):
 
 
 def _given_t60(modes, t60):
-    """`t60` with the decay times a resonator gives per mode (None: the damping section's) put in."""
+    """`t60` with the decay times a resonator gives per mode (None: the damping section's) put in.
+
+    A ``radiation_t60_s`` column (an air-loaded membrane's radiation) is a
+    loss on top of the damping section's: decay rates add,
+    ``1 / T60 = 1 / T60_patch + 1 / T60_radiation``.
+    """
+    if "radiation_t60_s" in modes.columns:
+        radiation = np.array([np.inf if v is None else v for v in modes.columns["radiation_t60_s"]], dtype=float)
+        t60 = 1.0 / (1.0 / np.asarray(t60, dtype=float) + 1.0 / radiation)
     if "t60_s" not in modes.columns:
         return t60
     given = np.array([np.nan if v is None else v for v in modes.columns["t60_s"]], dtype=float)

@@ -230,6 +230,8 @@ EXTRA_TEXT_COLUMNS = {
     "nodal_lines": ("nodal lines", "{}"),
     "timoshenko_shift_cents": ("shear cents", "{:+.1f}"),
     "cents_from_bending": ("from bending cents", "{:+.1f}"),
+    "air_cents": ("air cents", "{:+.1f}"),
+    "radiation_t60_s": ("radiation T60 s", "{:.3g}"),
     "nearest_bending": ("nearest bending", "{}"),
     "frequency_sd_hz": ("± Hz", "{:.2g}"),
     "t60_sd_s": ("± T60 s", "{:.2g}"),

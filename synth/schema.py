@@ -42,6 +42,7 @@ KIND_BOUNDS = {
     "pressure": (1e3, 1e13),  # Pa: 1 kPa (soft foam) .. 10 TPa (above diamond's modulus, ~1.1 TPa)
     "density": (1.0, 1e5),  # kg/m^3: aerogel .. 5x osmium (22.6 g/cm^3)
     "areal_density": (1e-6, 1e4),  # kg/m^2: 1 mg/m^2 film .. 10 t/m^2
+    "volume": (1e-9, 1e3),  # m^3: 1 mm^3 .. 1000 m^3
     "time": (None, 1e6),  # s: up to about 11.6 days
     "temperature": (-100.0, 500.0),  # degC
 }
@@ -56,6 +57,7 @@ _TAKES = {
     "pressure": "a pressure or modulus, e.g. '70 GPa'",
     "density": "a density, e.g. '7850 kg/m^3'",
     "areal_density": "a mass per area, e.g. '0.3 kg/m^2'",
+    "volume": "a volume, e.g. '0.14 m^3' or '140 L'",
     "angle": "an angle, e.g. '30 deg'",
     "temperature": "a temperature, e.g. '20 degC'",
     "level": "a level in dB, e.g. '-6 dB'",

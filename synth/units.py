@@ -44,6 +44,7 @@ UNITS = {
     "time": {"s": 1.0, "ms": 1e-3},
     "pressure": {"Pa": 1.0, "kPa": 1e3, "MPa": 1e6, "GPa": 1e9},
     "density": {"kg/m^3": 1.0, "kg/m3": 1.0, "g/cm^3": 1e3, "g/cm3": 1e3},
+    "volume": {"m^3": 1.0, "m3": 1.0, "L": 1e-3, "l": 1e-3, "cm^3": 1e-6, "cm3": 1e-6},
     "areal_density": {"kg/m^2": 1.0, "kg/m2": 1.0, "g/m^2": 1e-3, "g/m2": 1e-3},
     "angle": {"rad": 1.0, "deg": math.pi / 180.0},
     "temperature": {"degC": 1.0, "C": 1.0},

@@ -87,7 +87,12 @@ FIELDS = {
     "areal_density": Field("areal_density", positive=True),
     "material": Field("any"),
     "thickness": Field("length", positive=True),
+    "air": Field("choice", default="none", choices=("none", "free", "baffled", "kettle")),
+    "kettle_volume": Field("volume", positive=True),
 }
+
+#: Pairs solved exactly with the air (:mod:`.air_loading`); above them the infinite-membrane law.
+AIR_EXACT_PAIRS = 40
 
 #: Growth factor of the search bound while collecting enough modes.
 _GROW = 1.25
@@ -116,6 +121,11 @@ class MembraneSpec:
     youngs_modulus, poisson_ratio, tensile_strength : float or None
         The material's, when given by material + thickness: used for the
         stress report and the bending-stiffness note (bending is not modelled).
+    air : {"none", "free", "baffled", "kettle"}
+        How the air loads a circular head (:mod:`.air_loading`): not at all, in
+        free air on both faces, in an infinite baffle on both faces, or over a
+        closed kettle of `kettle_volume` (m^3) and baffled above.
+    kettle_volume : float or None, m^3
     """
 
     shape: str
@@ -130,8 +140,16 @@ class MembraneSpec:
     youngs_modulus: float | None = None
     poisson_ratio: float | None = None
     tensile_strength: float | None = None
+    air: str = "none"
+    kettle_volume: float | None = None
 
     TYPE: ClassVar[str] = "membrane"
+
+    def air_loading(self):
+        """The :class:`~synth.resonators.air_loading.AirLoading` of this head."""
+        from .air_loading import AirLoading
+
+        return AirLoading(kind=self.air, kettle_volume=self.kettle_volume)
 
 
 def build_spec(values):
@@ -145,6 +163,13 @@ def build_spec(values):
         )
     areal_density, material, thickness = _areal_density(values)
     constants = values["material"]
+    air, volume = values["air"], values["kettle_volume"]
+    if air != "none" and shape != "circle":
+        raise SpecError(f"air: {air} is worked out for a circular head only (shape: circle)", key="air")
+    if air == "kettle" and volume is None:
+        raise SpecError("air: kettle needs kettle_volume (the kettle's air, e.g. 0.14 m^3)", key="kettle_volume")
+    if volume is not None and air != "kettle":
+        raise SpecError(f"kettle_volume goes with air: kettle (air is {air})", key="kettle_volume")
     return MembraneSpec(
         shape=shape,
         areal_density=areal_density,
@@ -158,6 +183,8 @@ def build_spec(values):
         youngs_modulus=None if constants is None else constants.youngs_modulus,
         poisson_ratio=None if constants is None else constants.poisson_ratio,
         tensile_strength=None if constants is None else constants.tensile_strength,
+        air=air,
+        kettle_volume=volume,
     )
 
 
@@ -215,6 +242,10 @@ def solve_tension(spec, pitch_hz):
     ``pi sqrt(1/Lx**2 + 1/Ly**2)`` (rectangle).
     """
     speed = 2.0 * math.pi * pitch_hz / _lowest_eigenvalue(spec)
+    if spec.shape == "circle" and spec.air != "none":  # the loaded (0,1) carries the pitch
+        from .air_loading import tension_for_pitch
+
+        return tension_for_pitch(spec.radius, spec.areal_density, pitch_hz, loading=spec.air_loading(), mode=(0, 1))
     return spec.areal_density * speed**2
 
 
@@ -385,8 +416,16 @@ def _halley(order, lo, hi, f_lo, f_hi):
 
 def _circle_pairs(spec, speed, n_modes):
     """Per-pair frequencies, orders, labels, radial function and columns of a circle."""
-    j, m, n, zeros = _circle_table(n_modes)  # n_modes pairs: enough for n_modes rows either way
+    margin = 0 if spec.air == "none" else max(4, n_modes // 10)  # the air reorders the top end a little
+    j, m, n, zeros = _circle_table(n_modes + margin)  # n_modes pairs: enough for n_modes rows either way
     freq = j * speed / (2.0 * math.pi * spec.radius)
+    air_columns = {}
+    if spec.air != "none":
+        freq, cents, t60 = _air_loaded(spec, speed, j, m, n, freq)
+        order = np.argsort(freq, kind="stable")[:n_modes]
+        j, m, n, freq = j[order], m[order], n[order], freq[order]
+        air_columns = {"air_cents": tuple(float(c) for c in cents[order]),
+                       "radiation_t60_s": tuple(None if not math.isfinite(t) else float(t) for t in t60[order])}
     norm = np.abs(jv(m + 1, j))
     root2 = np.where(m == 0, 1.0, math.sqrt(2.0))
 
@@ -401,9 +440,33 @@ def _circle_pairs(spec, speed, n_modes):
         "nodal_circles": tuple(int(k) - 1 for k in n),
         "nodal_lines": tuple(int(a + b) - 1 for a, b in zip(m, n)),
         "nodal_circle_radii": LazyColumn(radii, len(j)),
+        **air_columns,
     }
     labels = tuple(f"({a},{b})" for a, b in zip(m.tolist(), n.tolist()))
     return freq, m, labels, radial, columns
+
+
+def _air_loaded(spec, speed, j, m, n, freq):
+    """(frequency Hz, cents from in vacuo, radiation T60 s) of the pairs (j, m, n) of an air-loaded head.
+
+    The lowest :data:`AIR_EXACT_PAIRS` pairs are solved with the air
+    (:func:`.air_loading.air_loaded_modes`); above them, where the head is
+    many wavelengths across, the infinite membrane's added mass 2 rho / k per
+    area for both faces: ``f = f_vacuum / sqrt(1 + 2 rho / (sigma k))``, k = j / a,
+    without radiation damping (their radiation T60 is long; left to the patch).
+    """
+    from .air_loading import AIR_DENSITY, air_loaded_modes
+
+    k = j / spec.radius
+    loaded = freq / np.sqrt(1.0 + 2.0 * AIR_DENSITY / (spec.areal_density * k))
+    t60 = np.full(freq.shape, np.inf)
+    exact = np.argsort(freq, kind="stable")[:AIR_EXACT_PAIRS]
+    tension = speed**2 * spec.areal_density
+    solved = air_loaded_modes(spec.radius, tension, spec.areal_density, list(zip(m[exact].tolist(), n[exact].tolist())),
+                              loading=spec.air_loading())
+    loaded[exact] = solved.frequency_hz
+    t60[exact] = solved.t60_s
+    return loaded, 1200.0 * np.log2(loaded / freq), t60
 
 
 def _rectangle_table(n_rows, width, height):
@@ -466,6 +529,8 @@ def solve(spec, n_modes):
     if spec.shape == "circle":
         freq, orders, labels, radial, columns = _circle_pairs(spec, speed, n_modes)
         geometry = {"radius_m": spec.radius, "orientation_reference_deg": 0.0}
+        if spec.air != "none":
+            geometry.update({"air": spec.air, **({"kettle_volume_m3": spec.kettle_volume} if spec.kettle_volume else {})})
     else:
         freq, labels, shape, columns = _rectangle_solution(spec, speed, n_modes)
         geometry = {"width_m": spec.width, "height_m": spec.height}
@@ -535,6 +600,8 @@ def count_below(spec, limit_hz):
     tension = solve_tension(spec, spec.pitch_hz) if spec.tension is None else spec.tension
     speed = wave_speed(tension, spec.areal_density)
     if spec.shape == "circle":
+        if spec.air != "none":  # the air lowers the modes: count in vacuo up to the largest lowering (the (0,1)'s)
+            limit_hz *= math.sqrt(1.0 + 2.0 * 1.2 * spec.radius / (spec.areal_density * circle_zeros(0, 1)[0]))
         x = 2.0 * math.pi * spec.radius * limit_hz / speed
         if x * x / 8.0 > _COUNT_EXACTLY:
             return int(x * x / 8.0)
