@@ -66,6 +66,7 @@ from scipy.special import sindg
 
 from ..modes import Solution, frozen_array
 from ..schema import Field
+from . import plate_rect
 from .common import SpecError, UnreachablePitch
 from .outline import PairedSolution, check_outline
 from .plate_circle import circle_lambdas, circle_pairs
@@ -103,7 +104,8 @@ THIN_PLATE_WAVELENGTHS = 6.0
 #: Patch keys of a plate (besides ``type``).
 FIELDS = {
     "shape": Field("choice", required=True, choices=("circle", "rectangle")),
-    "edges": Field("choice", required=True, choices=("clamped", "free", "pinned")),
+    "edges": Field("any", required=True,
+                   takes="clamped, free or pinned (a rectangle also takes {left, right, bottom, top} of those)"),
     "radius": Field("length", positive=True),
     "width": Field("length", positive=True),
     "height": Field("length", positive=True),
@@ -167,14 +169,12 @@ class PlateSpec:
 
 def build_spec(values):
     """A :class:`PlateSpec` from checked patch values (``material`` is a Material)."""
-    shape, edges = values["shape"], values["edges"]
+    shape = values["shape"]
     check_outline(shape, values)
-    if shape == "rectangle" and edges != "pinned":
-        raise SpecError(
-            f"a rectangle takes edges: pinned only (the closed-form case); {edges} rectangles are not built "
-            "(circles take clamped, free or pinned)",
-            key="edges",
-        )
+    edges = plate_rect.edges_from(values["edges"])  # "clamped" | "free" | "pinned" | (left, right, bottom, top)
+    if shape == "circle" and not isinstance(edges, str):
+        raise SpecError("a circle has one edge: give clamped, free or pinned (left/right/bottom/top are for a "
+                        "rectangle)", key="edges")
     if (values["pitch"] is None) == (values["thickness"] is None):
         raise SpecError(
             "give exactly one of 'pitch' (the thickness is solved) or 'thickness'",
@@ -236,6 +236,8 @@ def _hz_per_lambda2(spec, thickness):
 
 
 def _lowest_lambda2(spec):
+    if spec.shape == "rectangle" and not plate_rect.is_closed_form(spec.edges):
+        return plate_rect.lowest_lambda2(spec)
     if spec.shape == "rectangle":
         return math.pi**2 * (1.0 + (spec.width / spec.height) ** 2)
     return _lowest_circle_lambda2(spec.edges, spec.poisson_ratio)
@@ -357,6 +359,8 @@ def solve(spec, n_modes):
         lambda_squared.  Parameters: the thickness (solved or given), D, the
         areal density, the mass and the thin-plate limit frequency.
     """
+    if spec.shape == "rectangle" and not plate_rect.is_closed_form(spec.edges):
+        return plate_rect.solve(spec, n_modes)
     thickness = spec.thickness if spec.thickness is not None else solve_thickness(spec, spec.pitch_hz)
     if spec.shape == "circle":
         lambda2, orders, labels, radial, columns = circle_pairs(spec, n_modes)
@@ -428,6 +432,8 @@ def count_below(spec, limit_hz):
     correction is left to the growth of
     :meth:`synth.solvecache.SolveCache.solve_below`).
     """
+    if spec.shape == "rectangle" and not plate_rect.is_closed_form(spec.edges):
+        return plate_rect.count_below(spec, limit_hz)
     thickness = spec.thickness if spec.thickness is not None else solve_thickness(spec, spec.pitch_hz)
     lambda2 = limit_hz / _hz_per_lambda2(spec, thickness)
     if spec.shape == "circle":
