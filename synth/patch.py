@@ -508,12 +508,34 @@ def _position(section, key, style, default):
             polar = Section(value, file=section.file, path=section.key(key))
             values = read_section(polar, _POLAR_FIELDS)
             return Point("polar", (_snapped(values["radius"]), values["angle"]))
+        if style == "xy_m":  # an outline: [x, y] in metres (or lengths) in the outline's coordinates
+            from .resonators.fe.geometry import to_metres
+
+            if not isinstance(value, list) or len(value) != 2:
+                raise ValueError(f"must be [x, y] in metres (or lengths such as '120 mm'), got {short_repr(value)}")
+            return Point("xy_m", tuple(to_metres(v, key) for v in value))
         raise ValueError("this resonator takes no positions; leave the key out")
     except ValueError as error:
         if isinstance(error, PatchError):
             raise
         hint = " (a fraction of the length, 0..1)" if style == "fraction" else ""
-        raise section.error(key, f"{error}{hint}") from None
+        raise section.error(key, f"{getattr(error, 'message', error)}{hint}") from None
+
+
+def _outline_point(spec, section, key, point):
+    """`point` of an outline resonator checked to lie on the object (one line naming `key`), or the default."""
+    from .resonators.common import SpecError
+    from .resonators.fe.geometry import default_position
+
+    if point is None:
+        return None
+    if point.style != "xy_m":  # the default of the style table: a point on the object instead
+        return Point("xy_m", default_position(spec.outline))
+    try:
+        resonator_module(spec.TYPE).check_position(spec, point.values, key)
+    except SpecError as error:
+        raise section.error(key, error.message if hasattr(error, "message") else str(error)) from None
+    return point
 
 
 _POLAR_FIELDS = {
@@ -593,12 +615,14 @@ def patch_from_mapping(mapping, *, file="<patch>", overrides=None):
     spec = _build_resonator(top.child("resonator", _RESONATOR_TAKES))
     style = resonator_module(spec.TYPE).position_style(spec)
     sections = _sections(top, file)
+    outline = style == "xy_m"
     exc = sections["excitation"]
     exc_values = read_section(exc, _EXCITATION_FIELDS)
     mallet = _mallet(exc, exc_values["type"])
     excitation = Excitation(
         kind=exc_values["type"],
-        position=_position(exc, "position", style, _DEFAULT_POSITIONS[style]),
+        position=(_outline_point(spec, exc, "position", _position(exc, "position", style, _DEFAULT_POSITIONS["xy"]))
+                  if outline else _position(exc, "position", style, _DEFAULT_POSITIONS[style])),
         contact_time=exc_values["contact_time"] if mallet is None else mallet.contact_time,
         strength=exc_values["strength"],
         release_time=exc_values["release_time"],
@@ -611,7 +635,10 @@ def patch_from_mapping(mapping, *, file="<patch>", overrides=None):
     problem = check_measure(excitation.kind, measures)
     if problem is not None:
         raise pick.error("measures", problem)
-    pickup = Pickup(position=_position(pick, "position", style, None), measures=measures,
+    pick_point = _position(pick, "position", style, None)
+    if outline:
+        pick_point = _outline_point(spec, pick, "position", pick_point)
+    pickup = Pickup(position=pick_point, measures=measures,
                     across=pick_values["across"])
     spec = _torsion_choice(spec, exc, excitation.across, pick, pickup)
     damp_values = _damping_values(sections["damping"], top)

@@ -39,8 +39,12 @@ def shape_layout(patch):
         return style, 0, 1, 1.4
     if style == "fraction":
         n, columns, row_in = N_SHAPES_LINE, COLUMNS_LINE, 1.7
-    elif style == "xy":  # a rectangle: rows as tall as its panels need
-        aspect = patch.resonator.height / patch.resonator.width
+    elif style in ("xy", "xy_m"):  # a rectangle or an outline: rows as tall as its panels need
+        if style == "xy":
+            aspect = patch.resonator.height / patch.resonator.width
+        else:
+            x0, y0, x1, y1 = patch.resonator.outline.bounds
+            aspect = (y1 - y0) / (x1 - x0)
         n, columns, row_in = N_SHAPES_AREA, COLUMNS_AREA, min(3.6, 0.5 + WIDTH_IN / COLUMNS_AREA * aspect)
     else:
         n, columns, row_in = N_SHAPES_AREA, COLUMNS_AREA, 2.7
@@ -110,6 +114,9 @@ def shapes_figure(patch, *, figure=None, n_shapes=None, cache=None):
     if style == "fraction":
         _line_shapes(axes[:n], solution, excitation, pickup, kind)
         where = "along the length (fraction from the x = 0 end)"
+    elif style == "xy_m":
+        _outline_shapes(axes[:n], solution, excitation, pickup)
+        where = "nodal lines black, red and blue in opposite phase"
     elif getattr(solution, "orders", None) is not None:
         _circle_shapes(axes[:n], solution, excitation, pickup)
         where = "nodal lines black, red and blue in opposite phase"
@@ -194,6 +201,34 @@ def _sign_changes(x, y):
     s = np.flatnonzero(np.sign(y[:-1]) * np.sign(y[1:]) < 0)
     s = s[(x[s] > 0.0) & (x[s + 1] < 1.0)]
     return [float(x[k] - y[k] * (x[k + 1] - x[k]) / (y[k + 1] - y[k])) for k in s]
+
+
+def _outline_shapes(axes, solution, excitation, pickup):
+    """Modes of an outline (finite elements): the shape on the mesh, its nodal lines, the rim and holes (mm)."""
+    from matplotlib.collections import LineCollection
+
+    points, triangles = solution.triangulation()
+    values = solution.nodal_values(len(axes))
+    x, y = points[:, 0] * 1e3, points[:, 1] * 1e3
+    outline = solution.outline
+    rings = [outline.points] + list(outline.holes or ())
+    for i, ax in enumerate(axes):
+        top = float(np.max(np.abs(values[:, i]))) or 1.0
+        ax.tripcolor(x, y, triangles, values[:, i], cmap="RdBu_r", vmin=-top, vmax=top, shading="gouraud",
+                     rasterized=True, gid="shape")
+        segments = np.asarray(solution.nodal_lines(i)) * 1e3
+        if len(segments):
+            ax.add_collection(LineCollection(segments, colors="k", linewidths=1.4, gid="nodal-lines"))
+        for ring in rings:
+            r = np.asarray(list(ring) + [ring[0]]) * 1e3
+            ax.plot(r[:, 0], r[:, 1], color="k", linewidth=1.2, gid="rim")
+        for point, marker, style in ((excitation, "*", _EXCITATION), (pickup, "s", _PICKUP)):
+            if point is not None:
+                ax.plot(point[0] * 1e3, point[1] * 1e3, marker, ms=8 if marker == "*" else 5, mec="k", mew=0.5,
+                        zorder=4, gid=style["label"], linestyle="none", **style)
+        ax.set_aspect("equal")
+        ax.set_axis_off()
+        _title(ax, solution, i)
 
 
 def _rectangle_shapes(axes, solution, excitation, pickup, spec):

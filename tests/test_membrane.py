@@ -431,7 +431,7 @@ BAD_CASES = [
     pytest.param(_edit("  radius: 0.1 m\n", ""), "resonator.radius", 2,
                  r"missing for a circle: give 'radius'", id="circle-without-radius"),
     pytest.param(_edit("  shape: circle", "  shape: triangle"), "resonator.shape", 4,
-                 r"'triangle' is not allowed; did you mean 'rectangle'\? \(allowed: circle, rectangle\)", id="unknown-shape"),
+                 r"'triangle' is not allowed; did you mean 'rectangle'\? \(allowed: circle, rectangle, outline\)", id="unknown-shape"),
     pytest.param(_edit("  tension: 1000 N/m", "  tension: 1000 N/m\n  pitch: A3"), "resonator.pitch", 8,
                  r"give exactly one of 'pitch' \(the tension is solved\) or 'tension' \(N/m\)", id="tension-and-pitch"),
     pytest.param(_edit("  tension: 1000 N/m\n", ""), "resonator", 2,

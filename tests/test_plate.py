@@ -473,7 +473,7 @@ BAD = [
     pytest.param(dict(edges="{left: clamped, right: free, bottom: free, top: free}"), "resonator.edges", 5,
                  r"a circle has one edge", id="edge-mapping-on-circle"),
     pytest.param(dict(shape="triangle"), "resonator.shape", 4,
-                 r"'triangle' is not allowed; did you mean 'rectangle'\? \(allowed: circle, rectangle\)", id="unknown-shape"),
+                 r"'triangle' is not allowed; did you mean 'rectangle'\? \(allowed: circle, rectangle, outline\)", id="unknown-shape"),
     pytest.param(dict(edges="simply-supported"), "resonator.edges", 5,
                  r"not allowed \(allowed: clamped, free, pinned, or for a rectangle", id="unknown-edges"),
     pytest.param(dict(thick="thickness: 0"), "resonator.thickness", 7, r"must be > 0, got 0", id="zero-thickness"),

@@ -48,7 +48,7 @@ from scipy.special import jn_zeros, jv
 from ..modes import LazyColumn, Solution, frozen_array
 from ..schema import Field
 from .common import SpecError, UnreachablePitch, stress_warnings
-from .outline import PairedSolution, check_outline
+from .outline import PairedSolution, check_outline, is_drawn_outline
 
 __all__ = [
     "FIELDS",
@@ -71,7 +71,7 @@ __all__ = [
 ]
 
 #: Membrane outlines a patch may name.
-SHAPES = ("circle", "rectangle")
+SHAPES = ("circle", "rectangle", "outline")
 
 #: Keys a command-line ``--pitch`` replaces (for the patch loader).
 PITCH_REPLACES = ("tension",)
@@ -89,6 +89,10 @@ FIELDS = {
     "thickness": Field("length", positive=True),
     "air": Field("choice", default="none", choices=("none", "free", "baffled", "kettle")),
     "kettle_volume": Field("volume", positive=True),
+    "points": Field("any"),  # shape: outline ([x, y] in metres; synth/resonators/fe)
+    "holes": Field("any"),
+    "svg_path": Field("str"),
+    "svg_unit": Field("length", positive=True, default=1e-3),
 }
 
 #: Pairs solved exactly with the air (:mod:`.air_loading`); above them the infinite-membrane law.
@@ -152,8 +156,13 @@ class MembraneSpec:
         return AirLoading(kind=self.air, kettle_volume=self.kettle_volume)
 
 
+
 def build_spec(values):
     """A :class:`MembraneSpec` from checked patch values (``material`` is a Material)."""
+    if is_drawn_outline(values):
+        from .fe import membrane_fe
+
+        return membrane_fe.build_spec(values)
     shape = values["shape"]
     check_outline(shape, values)
     if (values["pitch"] is None) == (values["tension"] is None):
@@ -208,11 +217,19 @@ def _areal_density(values):
 
 def position_style(spec):
     """Circle: ``{radius: fraction, angle: degrees}``; rectangle: ``[x, y]`` fractions."""
+    if getattr(spec, "shape", None) == "outline":
+        from .fe import membrane_fe
+
+        return membrane_fe.position_style(spec)
     return "polar" if spec.shape == "circle" else "xy"
 
 
 def retune(spec, pitch_hz):
     """The membrane re-tensioned so its lowest mode sounds at `pitch_hz`."""
+    if getattr(spec, "shape", None) == "outline":
+        from .fe import membrane_fe
+
+        return membrane_fe.retune(spec, pitch_hz)
     if not (math.isfinite(pitch_hz) and pitch_hz > 0):
         raise UnreachablePitch(f"pitch {pitch_hz!r} Hz must be a positive frequency")
     return replace(spec, tension=None, pitch_hz=pitch_hz)
@@ -524,6 +541,10 @@ def solve(spec, n_modes):
         include the tension (solved where a pitch was given) and the wave
         speed.
     """
+    if getattr(spec, "shape", None) == "outline":
+        from .fe import membrane_fe
+
+        return membrane_fe.solve(spec, n_modes)
     tension = solve_tension(spec, spec.pitch_hz) if spec.tension is None else spec.tension
     speed = wave_speed(tension, spec.areal_density)
     if spec.shape == "circle":
@@ -597,6 +618,10 @@ def count_below(spec, limit_hz):
     million.  A rectangle counts its modes exactly:
     ``(m / Lx)**2 + (n / Ly)**2 < (2 f / c)**2``.
     """
+    if getattr(spec, "shape", None) == "outline":
+        from .fe import membrane_fe
+
+        return membrane_fe.count_below(spec, limit_hz)
     tension = solve_tension(spec, spec.pitch_hz) if spec.tension is None else spec.tension
     speed = wave_speed(tension, spec.areal_density)
     if spec.shape == "circle":
@@ -654,3 +679,11 @@ def _bending_note(spec, tension, speed):
 
 
 modes = membrane_modes
+
+
+def check_position(spec, point, key):
+    """Refuse a point outside an outline or in a hole (SpecError naming `key`); other shapes check fractions."""
+    if getattr(spec, "shape", None) == "outline":
+        from .fe import membrane_fe
+
+        membrane_fe.check_position(spec, point, key)

@@ -21,7 +21,7 @@ import numpy as np
 from ..modes import ModeSet, frozen_array, take_column
 from .common import SpecError
 
-__all__ = ["OUTLINES", "check_outline", "frame_angle", "circle_rows", "PairedSolution"]
+__all__ = ["OUTLINES", "check_outline", "is_drawn_outline", "frame_angle", "circle_rows", "PairedSolution"]
 
 #: Size keys of each outline.
 OUTLINES = {"circle": ("radius",), "rectangle": ("width", "height")}
@@ -166,3 +166,22 @@ class PairedSolution:
             parameters=parameters,
             warnings=warnings,
         )
+
+
+def is_drawn_outline(values):
+    """True for ``shape: outline`` (finite elements, :mod:`.fe`); the keys of the other shapes refused either way.
+
+    Raises
+    ------
+    SpecError
+        An outline's key on a circle or rectangle, or a circle's or rectangle's size on an outline.
+    """
+    if values["shape"] != "outline":
+        for key in ("points", "holes", "hole_edges", "svg_path"):
+            if values.get(key) is not None:
+                raise SpecError(f"'{key}' is for shape: outline", key=key)
+        return False
+    for key in ("radius", "width", "height"):
+        if values.get(key) is not None:
+            raise SpecError(f"an outline takes 'points' (or 'svg_path'); '{key}' is for a circle or rectangle", key=key)
+    return True

@@ -1,5 +1,6 @@
-"""Flexural modes of thin plates: circles (clamped, free or pinned edges) and
-rectangles with pinned edges.
+"""Flexural modes of thin plates: circles (clamped, free or pinned edges),
+rectangles (pinned edges in closed form; any other edges by Rayleigh-Ritz in
+:mod:`.plate_rect`) and any outline (finite elements in :mod:`.fe`).
 
 Notes
 -----
@@ -68,7 +69,7 @@ from ..modes import Solution, frozen_array
 from ..schema import Field
 from . import plate_rect
 from .common import SpecError, UnreachablePitch
-from .outline import PairedSolution, check_outline
+from .outline import PairedSolution, check_outline, is_drawn_outline
 from .plate_circle import circle_lambdas, circle_pairs
 
 __all__ = [
@@ -103,7 +104,7 @@ THIN_PLATE_WAVELENGTHS = 6.0
 
 #: Patch keys of a plate (besides ``type``).
 FIELDS = {
-    "shape": Field("choice", required=True, choices=("circle", "rectangle")),
+    "shape": Field("choice", required=True, choices=("circle", "rectangle", "outline")),
     "edges": Field("any", required=True,
                    takes="clamped, free or pinned (a rectangle also takes {left, right, bottom, top} of those)"),
     "radius": Field("length", positive=True),
@@ -112,6 +113,11 @@ FIELDS = {
     "thickness": Field("length", positive=True),
     "pitch": Field("pitch", positive=True),
     "material": Field("any", required=True),
+    "points": Field("any"),  # shape: outline ([x, y] in metres; synth/resonators/fe)
+    "holes": Field("any"),
+    "svg_path": Field("str"),
+    "svg_unit": Field("length", positive=True, default=1e-3),
+    "hole_edges": Field("any"),
 }
 
 #: Keys a pitch (e.g. ``--pitch`` on the command line) replaces.
@@ -167,8 +173,13 @@ class PlateSpec:
         return 2.0 * self.radius if self.shape == "circle" else min(self.width, self.height)
 
 
+
 def build_spec(values):
     """A :class:`PlateSpec` from checked patch values (``material`` is a Material)."""
+    if is_drawn_outline(values):
+        from .fe import plate_fe
+
+        return plate_fe.build_spec(values)
     shape = values["shape"]
     check_outline(shape, values)
     edges = plate_rect.edges_from(values["edges"])  # "clamped" | "free" | "pinned" | (left, right, bottom, top)
@@ -210,11 +221,19 @@ def build_spec(values):
 
 def position_style(spec):
     """Circles take ``{radius, angle}`` positions, rectangles ``[x, y]`` fractions."""
+    if getattr(spec, "shape", None) == "outline":
+        from .fe import plate_fe
+
+        return plate_fe.position_style(spec)
     return "polar" if spec.shape == "circle" else "xy"
 
 
 def retune(spec, pitch_hz):
     """The plate with its thickness changed so its lowest mode sounds at `pitch_hz`."""
+    if getattr(spec, "shape", None) == "outline":
+        from .fe import plate_fe
+
+        return plate_fe.retune(spec, pitch_hz)
     retuned = replace(spec, thickness=None, pitch_hz=pitch_hz)
     solve_thickness(retuned, pitch_hz)
     return retuned
@@ -359,6 +378,10 @@ def solve(spec, n_modes):
         lambda_squared.  Parameters: the thickness (solved or given), D, the
         areal density, the mass and the thin-plate limit frequency.
     """
+    if getattr(spec, "shape", None) == "outline":
+        from .fe import plate_fe
+
+        return plate_fe.solve(spec, n_modes)
     if spec.shape == "rectangle" and not plate_rect.is_closed_form(spec.edges):
         return plate_rect.solve(spec, n_modes)
     thickness = spec.thickness if spec.thickness is not None else solve_thickness(spec, spec.pitch_hz)
@@ -432,6 +455,10 @@ def count_below(spec, limit_hz):
     correction is left to the growth of
     :meth:`synth.solvecache.SolveCache.solve_below`).
     """
+    if getattr(spec, "shape", None) == "outline":
+        from .fe import plate_fe
+
+        return plate_fe.count_below(spec, limit_hz)
     if spec.shape == "rectangle" and not plate_rect.is_closed_form(spec.edges):
         return plate_rect.count_below(spec, limit_hz)
     thickness = spec.thickness if spec.thickness is not None else solve_thickness(spec, spec.pitch_hz)
@@ -461,3 +488,11 @@ def plate_modes(spec, *, excitation_position, pickup_position, n_modes):
 
 
 modes = plate_modes
+
+
+def check_position(spec, point, key):
+    """Refuse a point outside an outline or in a hole (SpecError naming `key`); other shapes check fractions."""
+    if getattr(spec, "shape", None) == "outline":
+        from .fe import plate_fe
+
+        plate_fe.check_position(spec, point, key)
