@@ -156,7 +156,6 @@ class MembraneSpec:
         return AirLoading(kind=self.air, kettle_volume=self.kettle_volume)
 
 
-
 def build_spec(values):
     """A :class:`MembraneSpec` from checked patch values (``material`` is a Material)."""
     if is_drawn_outline(values):

@@ -173,7 +173,6 @@ class PlateSpec:
         return 2.0 * self.radius if self.shape == "circle" else min(self.width, self.height)
 
 
-
 def build_spec(values):
     """A :class:`PlateSpec` from checked patch values (``material`` is a Material)."""
     if is_drawn_outline(values):
