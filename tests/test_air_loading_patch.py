@@ -64,3 +64,10 @@ def test_errors(change, key):
     with pytest.raises(PatchError) as error:
         synth.patch_from_text(KETTLE.replace(*change))
     assert error.value.key == key
+
+
+def test_a_pitch_below_the_kettle_air_is_refused():
+    # The kettle's air alone holds the (0,1) up (a stiffness without tension): no tension reaches A1.
+    with pytest.raises(PatchError, match="the air alone holds its lowest mode near") as error:
+        synth.partial_table(synth.patch_from_text(KETTLE.replace("tension: 3990", "pitch: A1")), onset=False)
+    assert error.value.key == "resonator.pitch"

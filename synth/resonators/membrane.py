@@ -259,9 +259,19 @@ def solve_tension(spec, pitch_hz):
     """
     speed = 2.0 * math.pi * pitch_hz / _lowest_eigenvalue(spec)
     if spec.shape == "circle" and spec.air != "none":  # the loaded (0,1) carries the pitch
-        from .air_loading import tension_for_pitch
+        from .air_loading import air_loaded_modes, tension_for_pitch
 
-        return tension_for_pitch(spec.radius, spec.areal_density, pitch_hz, loading=spec.air_loading(), mode=(0, 1))
+        tension = tension_for_pitch(spec.radius, spec.areal_density, pitch_hz, loading=spec.air_loading(), mode=(0, 1))
+        reached = air_loaded_modes(spec.radius, tension, spec.areal_density, [(0, 1)],
+                                   loading=spec.air_loading()).frequency_hz[0]
+        if not (tension > 0 and abs(reached / pitch_hz - 1.0) < 1e-6):
+            # a kettle's air alone holds the (0,1) up: below that no tension reaches the pitch
+            floor = air_loaded_modes(spec.radius, 1e-6 * spec.areal_density, spec.areal_density, [(0, 1)],
+                                     loading=spec.air_loading()).frequency_hz[0]
+            raise UnreachablePitch(f"pitch {pitch_hz:.2f} Hz is below what this head can sound with air: {spec.air}: "
+                                   f"the air alone holds its lowest mode near {floor:.1f} Hz; raise the pitch, "
+                                   "or make the kettle larger or the head heavier")
+        return tension
     return spec.areal_density * speed**2
 
 

@@ -118,6 +118,8 @@ FIELDS = {
     "svg_path": Field("str"),
     "svg_unit": Field("length", positive=True, default=1e-3),
     "hole_edges": Field("any"),
+    "theory": Field("choice", choices=("kirchhoff", "mindlin"),
+                    takes="kirchhoff (thin plate, the default) or mindlin (thick: shear and rotary inertia; shape: outline)"),
 }
 
 #: Keys a pitch (e.g. ``--pitch`` on the command line) replaces.
@@ -179,6 +181,9 @@ def build_spec(values):
         from .fe import plate_fe
 
         return plate_fe.build_spec(values)
+    if values.get("theory") == "mindlin":
+        raise SpecError(f"theory: mindlin is for shape: outline (a {values['shape']} here is a thin Kirchhoff plate; "
+                        "draw it as an outline for a thick one)", key="theory")
     shape = values["shape"]
     check_outline(shape, values)
     edges = plate_rect.edges_from(values["edges"])  # "clamped" | "free" | "pinned" | (left, right, bottom, top)
