@@ -635,7 +635,9 @@ def count_below(spec, limit_hz):
     speed = wave_speed(tension, spec.areal_density)
     if spec.shape == "circle":
         if spec.air != "none":  # the air lowers the modes: count in vacuo up to the largest lowering (the (0,1)'s)
-            limit_hz *= math.sqrt(1.0 + 2.0 * 1.2 * spec.radius / (spec.areal_density * circle_zeros(0, 1)[0]))
+            from .air_loading import AIR_DENSITY
+
+            limit_hz *= math.sqrt(1.0 + 2.0 * AIR_DENSITY * spec.radius / (spec.areal_density * circle_zeros(0, 1)[0]))
         x = 2.0 * math.pi * spec.radius * limit_hz / speed
         if x * x / 8.0 > _COUNT_EXACTLY:
             return int(x * x / 8.0)
