@@ -225,23 +225,31 @@ def _plate_constraints(mesh, conditions, basis, facet_index):
         rows[v] = [r for kind, t in sides for r in _vertex_rows(kind, t, curved=False)]
     n_dofs = basis.N
     keep = np.ones(n_dofs, dtype=bool)
-    cols_i, cols_j, cols_v = [], [], []
-    extra = 0
     blocks = []
     for v, c in sorted(rows.items()):
         dofs = nodal[:, v]
-        _, s, vt = np.linalg.svd(np.asarray(c, dtype=float))
-        rank = int(np.sum(s > 1e-10 * s[0]))
-        null = vt[rank:].T  # (6, 6 - rank)
         keep[dofs] = False
-        blocks.append((dofs, null))
-        extra += null.shape[1]
+        blocks.append((dofs, null_space(c)))  # (6, 6 - rank)
     facet_dofs = basis.facet_dofs[0, np.asarray(fixed_facets, dtype=np.int64)] if fixed_facets else []
     keep[np.asarray(facet_dofs, dtype=np.int64)] = False
+    return constrained_basis(keep, blocks)
+
+
+def null_space(rows):
+    """An orthonormal basis (columns) of the vectors a node's constraint `rows` leave free."""
+    _, s, vt = np.linalg.svd(np.asarray(rows, dtype=float))
+    rank = int(np.sum(s > 1e-10 * s[0]))
+    return vt[rank:].T
+
+
+def constrained_basis(keep, blocks):
+    """The sparse map T (all dofs x free coordinates) from the unconstrained dofs `keep` and per-node blocks.
+
+    Each block is ``(dofs, null)``: the node's dofs and the null space of its
+    constraints; the free coordinates are the kept dofs, then each block's.
+    """
     plain = np.flatnonzero(keep)
-    cols_i.append(plain)
-    cols_j.append(np.arange(plain.size))
-    cols_v.append(np.ones(plain.size))
+    cols_i, cols_j, cols_v = [plain], [np.arange(plain.size)], [np.ones(plain.size)]
     col = plain.size
     for dofs, null in blocks:
         k = null.shape[1]
@@ -252,7 +260,8 @@ def _plate_constraints(mesh, conditions, basis, facet_index):
         cols_j.append(jj.ravel())
         cols_v.append(null.ravel())
         col += k
-    T = sp.csr_matrix((np.concatenate(cols_v), (np.concatenate(cols_i), np.concatenate(cols_j))), shape=(n_dofs, col))
+    T = sp.csr_matrix((np.concatenate(cols_v), (np.concatenate(cols_i), np.concatenate(cols_j))),
+                      shape=(keep.size, col))
     T.eliminate_zeros()
     return T
 

@@ -52,6 +52,8 @@ import math
 import numpy as np
 import scipy.sparse as sp
 
+from .core import constrained_basis, null_space
+
 __all__ = ["KAPPA_MINDLIN", "mindlin_system", "shear_factor", "rotary_factor"]
 
 #: Mindlin's shear coefficient pi**2 / 12 (matches the exact thickness-shear frequency).
@@ -150,22 +152,6 @@ def _constraints(mesh, conditions, m, basis):
         else:
             c = [r for _, _, local in sides for r in local]
         dofs = np.array([node, n + node, 2 * n + node])
-        _, sv, vt = np.linalg.svd(np.asarray(c, dtype=float))
-        rank = int(np.sum(sv > 1e-10 * sv[0]))
         keep[dofs] = False
-        blocks.append((dofs, vt[rank:].T))
-    plain = np.flatnonzero(keep)
-    ci, cj, cv = [plain], [np.arange(plain.size)], [np.ones(plain.size)]
-    col = plain.size
-    for dofs, null in blocks:
-        k = null.shape[1]
-        if k == 0:
-            continue
-        ii, jj = np.meshgrid(dofs, np.arange(col, col + k), indexing="ij")
-        ci.append(ii.ravel())
-        cj.append(jj.ravel())
-        cv.append(null.ravel())
-        col += k
-    T = sp.csr_matrix((np.concatenate(cv), (np.concatenate(ci), np.concatenate(cj))), shape=(3 * n, col))
-    T.eliminate_zeros()
-    return T
+        blocks.append((dofs, null_space(c)))
+    return constrained_basis(keep, blocks)
