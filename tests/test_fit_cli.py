@@ -276,3 +276,23 @@ def test_cli_model_choices_are_the_fits():
     from synth.cli import FIT_MODELS
 
     assert FIT_MODELS == MODELS
+
+
+def test_check_refuses_another_sample_rate(harp, capsys):
+    before = sorted(p.name for p in harp.iterdir())
+    status, out, err = run_cli(capsys, "fit", "harp.wav", "--check", "-o", "fit.yaml",
+                               "--set", "render.sample_rate=16000")
+    assert status == 2 and out == ""
+    assert error_line(err).startswith("synth: error: command line: --check: ")
+    assert sorted(p.name for p in harp.iterdir()) == before
+
+
+def test_compare_two_recordings_of_different_rates_refused(tmp_path, monkeypatch, capsys):
+    monkeypatch.chdir(tmp_path)
+    for name, rate in (("a.wav", 48000), ("b.wav", 32000)):
+        t = np.arange(rate) / rate
+        sf.write(name, 0.5 * np.sin(2 * np.pi * 440 * t) * np.exp(-3 * t), rate)
+    status, out, err = run_cli(capsys, "compare", "a.wav", "b.wav", "-o", "ab.wav")
+    assert status == 2
+    assert error_line(err).startswith("synth: error: command line: --output: the recordings have different")
+    assert sorted(p.name for p in tmp_path.iterdir()) == ["a.wav", "b.wav"]

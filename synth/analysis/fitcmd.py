@@ -102,12 +102,11 @@ def _check(patch, recording, estimate):
     start = int(round(estimate.onset_s * recording.sample_rate))
     recorded = np.asarray(recording.signal[start:start + int(CHECK_SECONDS * recording.sample_rate)], dtype=float)
     rate = int(patch.render.sample_rate)
-    patch = replace(patch, render=replace(patch.render, duration=max(len(recorded) / rate, 0.05)))
-    heard = render(patch)
-    signal = np.asarray(heard.signal, dtype=float)[: len(recorded)]
     if rate != int(round(recording.sample_rate)):
         raise option_error("the patch renders at another sample rate than the recording's: leave "
                            "render.sample_rate to the fit", "--check")
+    patch = replace(patch, render=replace(patch.render, duration=max(len(recorded) / rate, 0.05)))
+    signal = np.asarray(render(patch).signal, dtype=float)[: len(recorded)]
     recorded = recorded[: len(signal)]
     distance, bands = spectral_distance(recorded, signal, sample_rate=rate)
     return {"spectral_distance_db": distance, "bands": bands, "seconds": len(signal) / rate}
