@@ -32,6 +32,7 @@ bench: $(STAMP)
 	$(BIN)/python benchmarks/engine.py
 	$(BIN)/python benchmarks/e2e.py
 	$(BIN)/python benchmarks/fit.py
+	$(BIN)/python benchmarks/fe.py
 
 clean:
 	rm -rf renders/*.wav .pytest_cache
